@@ -1,0 +1,91 @@
+"""The few exception types covey raises. Each carries data; its message names the key, the value,
+the units and the fix. The CLI turns them into exit codes (2 for input errors, 1 for run failures)
+and never shows a traceback for them.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+
+class CoveyError(Exception):
+    """Base of all covey errors."""
+
+    exit_code = 1
+
+
+class ScenarioError(CoveyError):
+    """Bad scenario input.
+
+    Attributes
+    ----------
+    key : str
+        Dotted key path in the scenario file (e.g. ``deputies[1].roe_m``).
+    value : Any
+        The value given (``None`` when missing).
+    allowed : str
+        What is allowed, with units.
+    hint : str
+        A suggestion (e.g. the closest valid key), may be empty.
+    """
+
+    exit_code = 2
+
+    def __init__(self, key: str, value: Any, allowed: str, hint: str = "", path: str = ""):
+        self.key, self.value, self.allowed, self.hint, self.path = key, value, allowed, hint, path
+        where = f"{path}: " if path else ""
+        msg = f"{where}{key} = {value!r}: {allowed}"
+        if hint:
+            msg += f" ({hint})"
+        super().__init__(msg)
+
+
+class EnvironmentSetupError(CoveyError):
+    """The machine lacks something covey needs (Java, Orekit data, a file).
+
+    Attributes
+    ----------
+    what : str
+        What is missing or wrong.
+    fix : str
+        How to fix it.
+    """
+
+    exit_code = 2
+
+    def __init__(self, what: str, fix: str):
+        self.what, self.fix = what, fix
+        super().__init__(f"{what}. Fix: {fix}")
+
+
+class PropagationError(CoveyError):
+    """The truth propagation failed (Orekit raised) at a known time.
+
+    Attributes
+    ----------
+    t_s : float
+        Time reached, s since epoch.
+    spacecraft : str
+    detail : str
+        Orekit's message.
+    """
+
+    def __init__(self, t_s: float, spacecraft: str, detail: str):
+        self.t_s, self.spacecraft, self.detail = t_s, spacecraft, detail
+        super().__init__(f"truth propagation of {spacecraft!r} failed at t = {t_s:.1f} s: {detail}")
+
+
+class LogFormatError(CoveyError):
+    """A run log cannot be read (missing group, wrong schema version).
+
+    Attributes
+    ----------
+    path : str
+    key : str
+        HDF5 path inside the file.
+    detail : str
+    """
+
+    def __init__(self, path: str, key: str, detail: str):
+        self.path, self.key, self.detail = path, key, detail
+        super().__init__(f"{path}: {key}: {detail}")
