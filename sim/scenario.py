@@ -95,6 +95,8 @@ PRESET_DEFAULTS: dict[str, dict[str, Any]] = {
 _NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_-]{0,63}$")
 _RUN_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,127}$")
 _MISSING = object()
+JB2008_LAG_DAYS = 5.0
+"""JB2008 uses solar indices lagged by up to 5 days (the SOLFSMY.TXT header)."""
 
 _UNIT_SUFFIXES = (
     ("_kgpm3", "kg/m^3"), ("_mps", "m/s"), ("_Ns", "N s"), ("_m2", "m^2"), ("_km", "km"),
@@ -501,8 +503,9 @@ def _epoch(run: _Table) -> str:
         raise run.err("epoch_utc", v, f"must be {what}, got {_type_name(v)}")
     if dt.tzinfo is not None:
         dt = dt.astimezone(_dt.timezone.utc).replace(tzinfo=None)
-    if not 1957 <= dt.year <= 2100:
-        raise run.err("epoch_utc", v, "year must be in [1957, 2100]")
+    if not 1900 <= dt.year <= 2200:
+        raise run.err("epoch_utc", v if isinstance(v, str) else v.isoformat(),
+                      "year must be in [1900, 2200] (and inside the solar-activity data)")
     out = dt.strftime("%Y-%m-%dT%H:%M:%S")
     if dt.microsecond:
         out += f".{dt.microsecond:06d}".rstrip("0")
@@ -1008,7 +1011,7 @@ def _jb2008_span(data: Path):
         if not dates:
             raise EnvironmentSetupError(f"no data lines in {label!r}", "give a valid JB2008 file")
         spans.append((min(dates), max(dates), label))
-    return (max(s[0] for s in spans), min(s[1] for s in spans), min(s[1] for s in spans),
+    return (max(s[0] for s in spans), min(s[1] for s in spans), None,
             "; ".join(s[2] for s in spans))
 
 
@@ -1020,14 +1023,16 @@ def _check_solar_span(cfg: RunConfig, raw: dict, src: str, base_dir: Path, oreki
     first, last, _obs, label = span
     t0 = parse_epoch(cfg.epoch_utc)
     t1 = t0 + _dt.timedelta(seconds=cfg.duration_s)
-    earliest = _dt.datetime.combine(first, _dt.time()) + _dt.timedelta(days=AP_HISTORY_DAYS)
+    history = JB2008_LAG_DAYS if cfg.environment.atmosphere == "jb2008" else AP_HISTORY_DAYS
+    earliest = _dt.datetime.combine(first, _dt.time()) + _dt.timedelta(days=history)
     latest = _dt.datetime.combine(last, _dt.time()) + _dt.timedelta(days=1)
     span_txt = (f"the solar-activity data ({label}) cover {first.isoformat()} to "
                 f"{last.isoformat()}")
-    if t0 < earliest:
+    if t0 < earliest or t0 >= latest:
         raise ScenarioError("run.epoch_utc", cfg.epoch_utc,
-                            f"{span_txt}; the epoch must be on or after {earliest.isoformat()}Z "
-                            f"({AP_HISTORY_DAYS:g} days of ap history)", path=src)
+                            f"{span_txt}; the epoch must be in [{earliest.isoformat()}Z, "
+                            f"{latest.isoformat()}Z) ({history:g} days of history needed "
+                            "before it)", path=src)
     if t1 > latest:
         dkey = "run.duration_days" if "duration_days" in raw.get("run", {}) else "run.duration_s"
         raise ScenarioError(f"run.epoch_utc + {dkey}", f"{cfg.epoch_utc} + "
