@@ -89,11 +89,11 @@ def stm_j2(chief_oe, tau_s, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2):
     Phi[:, 2, 0] = 3.5 * k * eyf * Q * tau
     Phi[:, 2, 2] = cw - 4 * k * exi * eyf * G * Q * tau
     Phi[:, 2, 3] = -sw - 4 * k * eyi * eyf * G * Q * tau
-    Phi[:, 2, 4] = -5 * k * eyf * S * tau
+    Phi[:, 2, 4] = 5 * k * eyf * S * tau  # d(w_dot)/di = -5 kappa S (sign fixed, see tests)
     Phi[:, 3, 0] = -3.5 * k * exf * Q * tau
     Phi[:, 3, 2] = sw + 4 * k * exi * exf * G * Q * tau
     Phi[:, 3, 3] = cw + 4 * k * eyi * exf * G * Q * tau
-    Phi[:, 3, 4] = 5 * k * exf * S * tau
+    Phi[:, 3, 4] = -5 * k * exf * S * tau
     Phi[:, 4, 4] = 1.0
     Phi[:, 5, 0] = 3.5 * k * S * tau
     Phi[:, 5, 2] = -4 * k * exi * G * S * tau
