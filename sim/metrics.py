@@ -1,0 +1,148 @@
+"""Metrics that judge a run, computed from the logged truth only (never from guidance code).
+
+All inputs are plain arrays read from a run log, so the same functions serve a live run, a
+campaign summary and a later re-evaluation of old logs. Mean ROE come from sim.meanroe
+(Orekit's Eckstein-Hechler mean theory), as logged under ``/spacecraft/<name>/mean_roe_m``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, field
+from typing import Mapping, Sequence
+
+import numpy as np
+
+ROE_KEYS = ("a_da_m", "a_dlambda_m", "a_dex_m", "a_dey_m", "a_dix_m", "a_diy_m")
+
+
+@dataclass
+class DeputyMetrics:
+    """Per-deputy metrics of one run (units in names).
+
+    ``final_error_m`` is truth mean ROE minus target at the deadline (or at the last sample if
+    the run ended earlier, flagged by ``reached_deadline``), a-scaled metres, order da, dlambda,
+    dex, dey, dix, diy.
+    """
+
+    name: str
+    dv_total_mps: float
+    propellant_used_kg: float
+    n_burns: int
+    n_switches: int
+    final_error_m: list
+    final_error_norm_m: float
+    max_error_after_convergence_m: float
+    time_to_tolerance_s: float  # nan when never entered
+    reached_deadline: bool
+    time_in_mode_s: dict = field(default_factory=dict)
+    min_distance_m: float = float("nan")
+    min_rn_separation_m: float = float("nan")
+
+    def as_dict(self) -> dict:
+        return asdict(self)
+
+
+def rtn_relative(r_c, v_c, r_d):
+    """Deputy-minus-chief position in the chief RTN frame, shape (K, 3)."""
+    R = r_c / np.linalg.norm(r_c, axis=-1, keepdims=True)
+    h = np.cross(r_c, v_c)
+    N = h / np.linalg.norm(h, axis=-1, keepdims=True)
+    T = np.cross(N, R)
+    d = r_d - r_c
+    return np.stack([np.sum(d * R, -1), np.sum(d * T, -1), np.sum(d * N, -1)], axis=-1)
+
+
+def time_in_modes(t_s: np.ndarray, mode_index: np.ndarray, mode_names: Sequence[str]) -> dict:
+    """Seconds spent in each mode, from sampled mode indices (sample-and-hold)."""
+    out = {m: 0.0 for m in mode_names}
+    if len(t_s) < 2:
+        return out
+    dt = np.diff(t_s)
+    for k, m in enumerate(mode_names):
+        out[m] = float(np.sum(dt[mode_index[:-1] == k]))
+    return out
+
+
+def deputy_metrics(
+    name: str,
+    t_s: np.ndarray,
+    mean_roe_m: np.ndarray,
+    target_roe_m: np.ndarray,
+    deadline_s: float,
+    tolerance_m: np.ndarray,
+    dv_exec_rtn_mps: np.ndarray,
+    propellant_used_kg: float,
+    n_switches: int,
+    mode_index: np.ndarray,
+    mode_names: Sequence[str],
+    r_chief_eci_m: np.ndarray,
+    v_chief_eci_mps: np.ndarray,
+    r_deputy_eci_m: np.ndarray,
+) -> DeputyMetrics:
+    """Metrics of one deputy.
+
+    Parameters
+    ----------
+    t_s : (K,) sample times, s.
+    mean_roe_m : (K, 6) truth mean ROE, a-scaled m.
+    target_roe_m : (6,) target mean ROE, a-scaled m.
+    deadline_s : float, s since epoch.
+    tolerance_m : (6,) tolerance box half-widths per ROE component, a-scaled m.
+    dv_exec_rtn_mps : (B, 3) executed impulses.
+    r_chief_eci_m, v_chief_eci_mps, r_deputy_eci_m : (K, 3) truth samples (same times).
+    """
+    t_s = np.asarray(t_s, float)
+    err = np.asarray(mean_roe_m, float) - np.asarray(target_roe_m, float)[None, :]
+    tol = np.asarray(tolerance_m, float)
+    inside = np.all(np.abs(err) <= tol[None, :], axis=1)
+    reached = bool(t_s.size and t_s[-1] >= deadline_s - 1e-6)
+    k_final = int(np.searchsorted(t_s, deadline_s - 1e-6)) if reached else t_s.size - 1
+    k_final = min(max(k_final, 0), t_s.size - 1)
+    final = err[k_final] if t_s.size else np.full(6, np.nan)
+    # time to enter the tolerance box and stay in it until the end of the record
+    ttt = float("nan")
+    if inside.size and inside[-1]:
+        outside = np.nonzero(~inside)[0]
+        k_in = 0 if outside.size == 0 else outside[-1] + 1
+        ttt = float(t_s[k_in] - t_s[0])
+        max_after = float(np.max(np.linalg.norm(err[k_in:], axis=1)))
+    else:
+        max_after = float("nan")
+    dv = np.asarray(dv_exec_rtn_mps, float).reshape(-1, 3)
+    rel = rtn_relative(np.asarray(r_chief_eci_m), np.asarray(v_chief_eci_mps), np.asarray(r_deputy_eci_m))
+    return DeputyMetrics(
+        name=name,
+        dv_total_mps=float(np.sum(np.linalg.norm(dv, axis=1))),
+        propellant_used_kg=float(propellant_used_kg),
+        n_burns=int(dv.shape[0]),
+        n_switches=int(n_switches),
+        final_error_m=[float(x) for x in final],
+        final_error_norm_m=float(np.linalg.norm(final)),
+        max_error_after_convergence_m=max_after,
+        time_to_tolerance_s=ttt,
+        reached_deadline=reached,
+        time_in_mode_s=time_in_modes(t_s, np.asarray(mode_index), mode_names),
+        min_distance_m=float(np.min(np.linalg.norm(rel, axis=1))) if rel.size else float("nan"),
+        min_rn_separation_m=float(np.min(np.hypot(rel[:, 0], rel[:, 2]))) if rel.size else float("nan"),
+    )
+
+
+def format_table(rows: Sequence[Mapping], columns: Sequence[tuple[str, str, str]]) -> str:
+    """Plain-text table. ``columns``: (key, header, format spec)."""
+    head = [h for _, h, _ in columns]
+    body = []
+    for r in rows:
+        cells = []
+        for key, _, fmt in columns:
+            v = r.get(key, "")
+            try:
+                cells.append(format(v, fmt) if fmt else str(v))
+            except (TypeError, ValueError):
+                cells.append(str(v))
+        body.append(cells)
+    widths = [max(len(h), *(len(c[i]) for c in body)) if body else len(h) for i, h in enumerate(head)]
+    lines = ["  ".join(h.rjust(w) for h, w in zip(head, widths))]
+    lines.append("  ".join("-" * w for w in widths))
+    for c in body:
+        lines.append("  ".join(x.rjust(w) for x, w in zip(c, widths)))
+    return "\n".join(lines)
