@@ -422,7 +422,8 @@ class ActuatorModel:
         m_exec = target * (1.0 + s["dv_scale_sigma"] * n1) + s["dv_fixed_sigma_mps"] * n2
         m_exec = min(max(m_exec, dv_min), dv_max)
         sig_p = math.radians(s["pointing_sigma_deg"])
-        if sig_p > 0 and (n3 != 0.0 or n4 != 0.0):
+        turned = sig_p > 0 and (n3 != 0.0 or n4 != 0.0)
+        if turned:
             p1, p2 = _perpendicular_basis(u)
             e = sig_p * (n3 * p1 + n4 * p2)
             ang = float(np.linalg.norm(e))
@@ -436,7 +437,8 @@ class ActuatorModel:
             return rec("dropped_no_propellant", t_exec)
         self._mass[name] = mass - used
         self._prop[name] = self._prop[name] - used
-        return rec(status, t_exec, m_exec * u, used)
+        dv_exec = dv_cmd.copy() if (m_exec == mag and not turned) else m_exec * u  # exact when unchanged
+        return rec(status, t_exec, dv_exec, used)
 
     # -- attitude modes -------------------------------------------------------------------------
 
