@@ -54,7 +54,7 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
-from guidance.interface import MODE_NAMES_REQUIRED, GuidanceInputError, Impulse, ModeSwitch
+from guidance.interface import GuidanceInputError, Impulse, ModeSwitch
 
 from .config import ActuatorConfig, BusConfig, GeometryConfig
 from .errors import ScenarioError
@@ -215,6 +215,9 @@ def rotation_from_vector(rotvec) -> np.ndarray:
 def projected_area_m2(geometry: GeometryConfig, rotation_xyz_deg, error_rotvec_rad=(0.0, 0.0, 0.0)) -> float:
     """Area of a box-and-panels spacecraft projected along its velocity, m^2.
 
+    Same geometry and mode convention as ``sim.spacecraft`` (ram-facing area of a mode), with an
+    optional attitude error on top; a test checks the two agree.
+
     Parameters
     ----------
     geometry : sim.config.GeometryConfig
@@ -334,13 +337,14 @@ class ActuatorModel:
         return g
 
     def modes(self, name: str) -> tuple[str, ...]:
-        """Attitude modes the spacecraft defines."""
+        """Attitude modes the spacecraft defines: the bus's ``modes``; for a table geometry without
+        ``modes`` the table's keys; otherwise ``("nominal",)`` (as ``sim.spacecraft.mode_names``)."""
         bus = self.buses[self._known(name)]
+        if bus.modes:
+            return tuple(bus.modes)
         if bus.geometry.kind == "table":
-            names = list(bus.geometry.area_by_mode_m2)
-        else:
-            names = list(bus.modes)
-        return tuple(names) if names else MODE_NAMES_REQUIRED
+            return tuple(bus.geometry.area_by_mode_m2)
+        return ("nominal",)
 
     # -- impulses -------------------------------------------------------------------------------
 
@@ -377,7 +381,8 @@ class ActuatorModel:
                 dv = np.asarray(imp.dv_rtn_mps, dtype=float).reshape(3)
                 t = float(imp.t_s)
             except (TypeError, ValueError, AttributeError):
-                raise GuidanceInputError(key, imp, "an Impulse with t_s (s) and dv_rtn_mps, 3 numbers in m/s") from None
+                raise GuidanceInputError(
+                    key, imp, "an Impulse with t_s (s) and dv_rtn_mps, 3 numbers in m/s") from None
             if not (np.all(np.isfinite(dv)) and math.isfinite(t)):
                 raise GuidanceInputError(key, imp, "finite t_s (s) and dv_rtn_mps (m/s)")
             items.append((t, i, dv))
@@ -460,15 +465,15 @@ class ActuatorModel:
     def _attitude_factor(self, name: str, mode: str) -> tuple[float, np.ndarray]:
         if self.perfect or self._sig["attitude_sigma_deg"] == 0.0:
             return 1.0, np.zeros(3)
-        eps = math.radians(self._sig["attitude_sigma_deg"]) * self._stream(name, "attitude").standard_normal(3)
+        sig = math.radians(self._sig["attitude_sigma_deg"])
+        eps = sig * self._stream(name, "attitude").standard_normal(3)
         bus = self.buses[name]
-        if bus.geometry.kind == "box" and mode in bus.modes:
-            rot = bus.modes[mode].rotation_xyz_deg
+        if bus.geometry.kind == "box":
+            rot = bus.modes[mode].rotation_xyz_deg if mode in bus.modes else (0.0, 0.0, 0.0)
             a0 = projected_area_m2(bus.geometry, rot)
             a1 = projected_area_m2(bus.geometry, rot, eps)
             return (a1 / a0 if a0 > 0 else 1.0), eps
-        # table (or a box mode without a rotation): cosine of the tilt of the ram axis,
-        # e_x . R(eps) e_x
+        # table: cosine of the tilt of the ram axis, e_x . R(eps) e_x
         return float(rotation_from_vector(eps)[0, 0]), eps
 
     def _check_mode(self, name: str, mode, key: str) -> str:
