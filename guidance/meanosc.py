@@ -1,4 +1,4 @@
-"""First-order J2 mapping between osculating and mean quasi-nonsingular elements (numpy).
+"""First-order J2 (plus J3 long-period) mapping between osculating and mean elements (numpy).
 
 Element set (``oe``), shape (..., 6): ``(a_m, ex, ey, i_rad, raan_rad, u_rad)``, ``ex = e cos w``,
 ``ey = e sin w``, ``u = w + M`` the *mean* argument of latitude (as in :mod:`guidance.roe`).
@@ -19,6 +19,25 @@ result separately:
   their e-independent parts combine into functions of ``u = w + f`` only (checked by a test that
   turns ``w`` at e = 0).
 
+J3 long-period terms (on by default, ``j3=0`` turns them off): for near-circular orbits the
+averaged J3 potential, to first order in e, is ``R3 = n^2 a^2 g3 s (1 - 5/4 s^2) ey`` with
+``g3 = 3/2 J3 (Re/a)^3``, ``s = sin i`` (derived here from ``-(mu/r) J3 (Re/r)^3 P3(sin phi)``
+averaged over the mean anomaly). Lagrange's planetary equations give rates of ``lambda``, ``raan``
+and ``i`` proportional to ``ey`` and ``ex``; integrated over the J2 rotation of the e-vector
+(rate ``w_dot = 3 n J2 (Re/a)^2 (1 - 5/4 s^2)``) they give, with ``k3 = J3/(2 J2) Re/a``,
+
+- ``d lambda = -k3 [8.5 s (1 - 5/4 s^2) + tan(i/2) c (1 - 15/4 s^2)] / (1 - 5/4 s^2) ex``
+- ``d raan = -k3 (c/s) (1 - 15/4 s^2) / (1 - 5/4 s^2) ex``
+- ``d i = k3 c (ey + k3 s)``  (``-k3 s`` is the frozen ey, about which the e-vector turns)
+
+(c = cos i). The e-vector itself is left as is: its J3 part is the frozen-eccentricity offset,
+which the mean e-vector keeps (it turns about that point) and which cancels in ROE. Without
+these terms a 1 km separation in ex shows up as about 9 m of dlambda against Orekit's
+Eckstein-Hechler mean elements (which remove them); with them the difference is below 0.1 m
+(tests/guidance/test_meanosc.py). These rates are the classical ones that make the frozen
+eccentricity ``-J3/(2 J2) (Re/a) sin i`` (e.g. Vallado, Fundamentals of Astrodynamics and
+Applications, 4th ed., frozen orbits [memory]).
+
 Osculating to mean inverts that map by fixed-point iteration to a tolerance of 1e-13 (relative
 in ``a``, absolute in the others), so ``osc_to_mean(mean_to_osc(x)) == x`` to round-off; the
 sign-flipped appendix formula would agree with it only to O(J2^2).
@@ -32,7 +51,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .constants import J2, MU_EARTH_M3PS2, R_EARTH_M
+from .constants import J2, J3, MU_EARTH_M3PS2, R_EARTH_M
 from .roe import _solve_kepler, oe_to_rv, rv_to_oe, wrap_pi
 
 _TOL = 1e-13
@@ -48,8 +67,9 @@ def _check_oe(oe, name):
     return x
 
 
-def mean_to_osc(oe_mean, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2):
-    """Osculating elements from mean elements (first-order J2, Schaub & Junkins appendix F).
+def mean_to_osc(oe_mean, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2, j3=J3):
+    """Osculating elements from mean elements (first-order J2, Schaub & Junkins appendix F,
+    plus the J3 long-period terms of the module docstring; ``j3=0`` for J2 only).
 
     Parameters
     ----------
@@ -62,11 +82,12 @@ def mean_to_osc(oe_mean, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2):
         Osculating elements, same layout; angles ``raan`` and ``u`` in [0, 2 pi).
     """
     x = _check_oe(oe_mean, "oe_mean")
-    return _brouwer_j2(x, +0.5 * j2, re)
+    return _mean_to_osc(x, j2, j3, re)
 
 
-def _brouwer_j2(x, half_j2, re):
-    """The appendix-F map with ``gamma2 = half_j2 (Re/a)^2`` (positive: mean to osculating)."""
+def _mean_to_osc(x, j2, j3, re):
+    """The appendix-F map with ``gamma2 = J2/2 (Re/a)^2`` plus J3 long-period terms."""
+    half_j2 = 0.5 * j2
     a, ex, ey, i, raan, u = (x[..., k] for k in range(6))
     e = np.hypot(ex, ey)
     w = np.arctan2(ey, ex)
@@ -113,6 +134,15 @@ def _brouwer_j2(x, half_j2, re):
                                  + (aor**2 * eta2 + aor + 1.0 / 3.0) * s2w3f))
     dlam = dlam + X * eta2 * e / (1.0 + eta)
     edM = g2p / 8.0 * e * eta**3 * lp * np.sin(w2) - eta**3 * X
+    if j3 != 0.0:
+        k3 = j3 / (2.0 * j2) * re / a
+        s = np.sqrt(s2)
+        kc = 1.0 - 1.25 * s2
+        lam3 = -k3 * (8.5 * s * kc + np.tan(0.5 * i) * c * (1.0 - 3.75 * s2)) / kc * ex
+        raan3 = -k3 * (c / s) * (1.0 - 3.75 * s2) / kc * ex
+        di = di + k3 * c * (ey + k3 * s)
+        dlam = dlam + lam3
+        draan = draan + raan3
     u_new = u + dlam - draan
     z = (e + de - 1j * edM) * np.exp(1j * (u_new - M))
     out = np.empty(x.shape)
@@ -125,7 +155,8 @@ def _brouwer_j2(x, half_j2, re):
     return out
 
 
-def osc_to_mean(oe_osc, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2, tol=_TOL, max_iter=_MAX_ITER):
+def osc_to_mean(oe_osc, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2, j3=J3, tol=_TOL,
+                max_iter=_MAX_ITER):
     """Mean elements from osculating elements: the inverse of :func:`mean_to_osc`.
 
     Solved by fixed-point iteration ``mean += osc - mean_to_osc(mean)`` (angles wrapped), which
@@ -144,7 +175,7 @@ def osc_to_mean(oe_osc, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2, tol=_TOL, max_it
     osc = _check_oe(oe_osc, "oe_osc")
     mean = osc.copy()
     for _ in range(max_iter):
-        d = osc - _brouwer_j2(mean, +0.5 * j2, re)
+        d = osc - _mean_to_osc(mean, j2, j3, re)
         d[..., 4:] = wrap_pi(d[..., 4:])
         mean = mean + d
         err = np.max(np.abs(np.concatenate([d[..., :1] / osc[..., :1], d[..., 1:]], axis=-1)),
@@ -159,7 +190,7 @@ def osc_to_mean(oe_osc, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2, tol=_TOL, max_it
     return mean
 
 
-def rv_to_mean_oe(r_eci_m, v_eci_mps, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2):
+def rv_to_mean_oe(r_eci_m, v_eci_mps, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2, j3=J3):
     """Mean quasi-nonsingular elements from a Cartesian state in covey's ECI (TOD).
 
     Parameters
@@ -171,14 +202,14 @@ def rv_to_mean_oe(r_eci_m, v_eci_mps, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2):
     -------
     np.ndarray, shape (..., 6)
     """
-    return osc_to_mean(rv_to_oe(r_eci_m, v_eci_mps, mu), mu, re, j2)
+    return osc_to_mean(rv_to_oe(r_eci_m, v_eci_mps, mu), mu, re, j2, j3)
 
 
-def mean_oe_to_rv(oe_mean, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2):
+def mean_oe_to_rv(oe_mean, mu=MU_EARTH_M3PS2, re=R_EARTH_M, j2=J2, j3=J3):
     """Cartesian state in covey's ECI (TOD) from mean elements.
 
     Returns
     -------
     r_eci_m, v_eci_mps : np.ndarray, shape (..., 3)
     """
-    return oe_to_rv(mean_to_osc(oe_mean, mu, re, j2), mu)
+    return oe_to_rv(mean_to_osc(oe_mean, mu, re, j2, j3), mu)
