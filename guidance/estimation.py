@@ -18,6 +18,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .constants import MU_EARTH_M3PS2
 from .interface import GuidanceInputError, NavSolution
 from .meanosc import osc_to_mean
 from .roe import oe_to_roe, relative_rtn_to_eci, rv_to_oe
@@ -85,9 +86,10 @@ def nav_to_mean(nav: NavSolution) -> MeanRelativeState:
     """
     r_c = _vec3(nav.chief.r_eci_m, "nav.chief.r_eci_m")
     v_c = _vec3(nav.chief.v_eci_mps, "nav.chief.v_eci_mps")
-    chief_osc = rv_to_oe(r_c, v_c)
+    bound = float(v_c @ v_c) / 2.0 - MU_EARTH_M3PS2 / max(float(np.linalg.norm(r_c)), 1e-3) < 0
+    chief_osc = rv_to_oe(r_c, v_c) if bound else np.full(6, np.nan)
     e_c = float(np.hypot(chief_osc[1], chief_osc[2]))
-    if not (np.isfinite(chief_osc).all() and chief_osc[0] > 0 and e_c < 0.5):
+    if not (bound and np.isfinite(chief_osc).all() and e_c < 0.5):
         raise GuidanceInputError("nav.chief", (r_c.tolist(), v_c.tolist()),
                                  "a bound Earth orbit (position m, velocity m/s in TOD) with e < 0.5")
     names = list(nav.deputies)
@@ -106,8 +108,22 @@ def nav_to_mean(nav: NavSolution) -> MeanRelativeState:
         rel.append(x + pert)
     rel = np.stack(rel)  # (D, 13, 6)
     r_d, v_d = relative_rtn_to_eci(r_c, v_c, rel[..., :3], rel[..., 3:])
-    osc = np.concatenate([chief_osc[None], rv_to_oe(r_d, v_d).reshape(-1, 6)], axis=0)
-    mean = osc_to_mean(osc)  # (1 + 13 D, 6)
+    with np.errstate(invalid="ignore", divide="ignore"):  # unbound deputies are reported below
+        osc = np.concatenate([chief_osc[None], rv_to_oe(r_d, v_d).reshape(-1, 6)], axis=0)
+    dep_e = np.hypot(osc[1:, 1], osc[1:, 2]).reshape(len(names), 13)
+    for k, name in enumerate(names):
+        if not (np.all(np.isfinite(osc[1 + 13 * k:1 + 13 * (k + 1)])) and np.all(dep_e[k] < 0.5)):
+            d = nav.deputies[name]
+            raise GuidanceInputError(
+                f"nav.deputies.{name}", (np.asarray(d.dr_rtn_m).tolist(),
+                                         np.asarray(d.dv_rtn_mps).tolist()),
+                "a relative state (m, m/s in the chief's RTN) that puts the deputy on a bound "
+                "orbit with e < 0.5")
+    try:
+        mean = osc_to_mean(osc)  # (1 + 13 D, 6)
+    except ArithmeticError as exc:
+        raise GuidanceInputError("nav", f"t_s={nav.t_s}", f"states the mean-element mapping "
+                                 f"can convert ({exc})") from None
     chief_mean = mean[0]
     dep_mean = mean[1:].reshape(len(names), 13, 6)
     roe_all = oe_to_roe(chief_mean, dep_mean)  # (D, 13, 6)
