@@ -12,7 +12,11 @@ classical elements; it is made non-singular at e -> 0 here by never forming ``w`
 result separately:
 
 - the corrections to ``a``, ``i``, ``raan`` and to the mean longitude ``lambda = M + w + raan`` are
-  used as given (their ``sin 2w`` long-period terms cancel at e = 0);
+  used as given (their ``sin 2w`` long-period terms cancel at e = 0), with the ``lambda``
+  correction completed by ``X eta^2 e / (1 + eta)``: Brouwer's short-period corrections of l and
+  g share one bracket X (``e dM = -eta^3 X``, ``e dg = eta^2 X + ...``), so l + g keeps
+  ``X (eta^2 - eta^3) / e`` (Brouwer, "Solution of the problem of artificial satellite theory
+  without drag", AJ 64, 1959 [memory]); a J2 numerical-integration test shows it is needed;
 - the appendix forms ``e' exp(i M') = (e + de + i e dM) exp(i M)`` (its ``d1, d2``) and
   ``w' = lambda' - M' - raan'``; so the eccentricity vector is
   ``ex' + i ey' = (e + de - i e dM) exp(i (u' - M))``, where ``de`` and ``e dM`` stay finite and
