@@ -1,0 +1,984 @@
+"""Minimum-fuel reconfiguration planning in mean ROE: the convex program behind covey's laws.
+
+The problem (one deputy; deputies are independent given the chief's plan)
+------------------------------------------------------------------------
+Mean ROE ``x`` (dimensionless) at the solve time ``t0``, target ``x_target`` at the deadline ``T``.
+In the linear model of :mod:`guidance.dynamics`
+
+``x(T) = Phi(T, t0) x0 + sum_j G_j dv_j + sum_s g_s w_s``
+
+with ``G_j`` (6x3) the effect of an impulse ``dv_j`` (RTN, m/s) at candidate burn time ``t_j``
+(:func:`guidance.dynamics.impulse_input`) and ``g_s`` (6,) the effect of a constant differential
+along-track acceleration ``w_s`` (m/s^2) held over drag segment ``s``
+(:func:`guidance.dynamics.drag_segment_input`). On each segment the deputy spends a fraction
+``d_s`` of the time in its high-drag mode and the rest in its low-drag mode, so
+``w_s = w_low_s + d_s (w_high_s - w_low_s)`` with ``0 <= d_s <= 1`` (``w_high = w_low`` makes the
+drag a known disturbance). The program is
+
+``minimise sum_j ||dv_j||_2  s.t.  x(T) = x_target,  ||dv_j|| <= dv_max,  0 <= d_s <= 1``
+
+with exact Euclidean norms (one steerable thruster). Optionally rows are *soft*: their miss is
+allowed at a price, which drag-only re-planning uses.
+
+How it is solved (:class:`MinFuelProgram`)
+-----------------------------------------
+Rows are scaled by ``n a`` so that the columns are O(1) and the right-hand side ``delta`` is in
+m/s. With six terminal constraints the dual has six variables and reads
+
+``max q(lambda) = lambda.delta - sum_j dv_max (||G_j^T lambda|| - 1)_+ - sum_s (lambda.h_s)_+``
+
+(``h_s = g_s (w_high - w_low)``, scaled). An optimal plan uses at most six free columns, so the
+primal is solved by *column generation*: a restricted LP (HiGHS through its own Python bindings,
+warm-started from the previous basis after every change) over the drag columns, the burn
+directions found so far and six pairs of artificial columns; its row duals ``lambda`` price every
+candidate burn at once (``||G_j^T lambda||`` for all ``j``, one numpy pass), and each burn whose best
+direction ``G_j^T lambda / ||G_j^T lambda||`` has a negative reduced cost enters with that exact
+Euclidean direction (at most ``n_add`` per round, local minima in time first). A burn that holds
+several directions gets a capacity row ``sum mu <= dv_max`` so that its resulting impulse
+``sum mu c`` never exceeds the per-burn maximum. The restricted LP's cost is an upper bound and
+``q(lambda)`` (weak duality) a certified lower bound on the optimum; rounds stop when the gap is
+below ``tol_rel``. No polygonal approximation of the norm is involved: the only approximation is
+the reported, bounded gap.
+
+Infeasibility is certified, not guessed: for any ``lambda``,
+``lambda.delta > dv_max sum_j ||G_j^T lambda|| + sum_s (lambda.h_s)_+`` proves that no plan
+reaches the target (the right side is the support function of the reachable set); an LP that
+still needs its artificial columns when pricing finds nothing is reported infeasible with the
+residual.
+
+Minimum impulse bit (:func:`plan_deputy`): impulses of the solution below ``dv_min`` are excluded
+(their columns fixed at zero) and the program re-solved from its warm basis, so their delta-v
+moves to (merges into) other burns; a few rounds at most. It is never silently violated: when no
+plan without small impulses reaches the target, the small ones are dropped and the plan is
+returned as ``"degraded"`` with the miss they cause.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .dynamics import control_impulse, j2_coefficients, mean_arg_latitude, mean_motion, stm_j2, stm_kepler
+
+try:  # HiGHS's own bindings (a dependency of covey); imported lazily for a clear error
+    import highspy as _highspy
+except ImportError:  # pragma: no cover - exercised only on a broken install
+    _highspy = None
+
+STM_MODELS = {"j2": stm_j2, "kepler": stm_kepler}
+"""Dynamics models a plan may use (names -> STM functions of :mod:`guidance.dynamics`)."""
+
+TINY_DV_MPS = 1e-9
+"""Impulses below this (m/s) are numerical noise of the LP and are removed without re-solving."""
+
+
+# --------------------------------------------------------------------------------------------
+# Time grids and chief motion
+# --------------------------------------------------------------------------------------------
+
+
+def chief_period_s(chief_oe) -> float:
+    """Period of the chief's mean argument of latitude under J2 (``2 pi / u_dot``), s."""
+    return float(2.0 * np.pi / j2_coefficients(chief_oe)["u_dot"])
+
+
+def propagate_chief(chief_oe, tau_s):
+    """Chief mean elements after ``tau_s`` under secular J2 drift (guidance's own model).
+
+    Parameters
+    ----------
+    chief_oe : array_like, shape (6,)
+        ``(a_m, ex, ey, i_rad, raan_rad, u_rad)`` at the start.
+    tau_s : float
+        Interval, s.
+
+    Returns
+    -------
+    np.ndarray, shape (6,)
+        Elements at the end (``u`` not wrapped; ``a`` and ``i`` unchanged).
+    """
+    oe = np.array(chief_oe, dtype=float)
+    c = j2_coefficients(oe)
+    wt = c["w_dot"] * tau_s
+    ex, ey = oe[1], oe[2]
+    oe[1] = ex * np.cos(wt) - ey * np.sin(wt)
+    oe[2] = ex * np.sin(wt) + ey * np.cos(wt)
+    oe[4] = oe[4] + c["raan_dot"] * tau_s
+    oe[5] = oe[5] + c["u_dot"] * tau_s
+    return oe
+
+
+def burn_grid(t_anchor_s, t_from_s, t_to_s, period_s, per_orbit, margin_s=0.0):
+    """Candidate burn times on a fixed grid ``t_anchor + margin + k period / per_orbit``.
+
+    The grid is anchored (not restarted at every solve) so that a re-solve keeps every candidate of
+    the original plan that is still ahead: the rest of the original plan stays feasible, and the
+    remaining cost cannot grow (Bellman's principle).
+
+    Returns
+    -------
+    np.ndarray, shape (J,)
+        Grid times in ``[t_from_s + margin_s, t_to_s]`` (the end included to 1 microsecond), s.
+    """
+    step = period_s / float(per_orbit)
+    first = t_from_s + margin_s
+    k0 = int(np.ceil((first - t_anchor_s - margin_s) / step - 1e-9))
+    k1 = int(np.floor((t_to_s - t_anchor_s - margin_s) / step + 1e-9))
+    if k1 < k0:
+        return np.zeros(0)
+    t = t_anchor_s + margin_s + step * np.arange(k0, k1 + 1)
+    return t[(t >= first - 1e-6) & (t <= t_to_s + 1e-6)]
+
+
+def segment_grid(t_anchor_s, t_from_s, t_to_s, period_s, per_orbit):
+    """Drag segments with boundaries on ``t_anchor + k period / per_orbit``, clipped to [from, to].
+
+    Returns
+    -------
+    s0_s, s1_s : np.ndarray, shape (S,)
+        Start and end of each segment, s (the first and the last may be partial).
+    """
+    if t_to_s <= t_from_s:
+        return np.zeros(0), np.zeros(0)
+    step = period_s / float(per_orbit)
+    k0 = int(np.floor((t_from_s - t_anchor_s) / step + 1e-9)) + 1
+    k1 = int(np.ceil((t_to_s - t_anchor_s) / step - 1e-9)) - 1
+    inner = t_anchor_s + step * np.arange(k0, k1 + 1)
+    inner = inner[(inner > t_from_s + 1e-6) & (inner < t_to_s - 1e-6)]
+    b = np.concatenate([[t_from_s], inner, [t_to_s]])
+    return b[:-1], b[1:]
+
+
+# --------------------------------------------------------------------------------------------
+# Control-effect matrices (vectorised forms of guidance.dynamics.impulse_input and
+# drag_segment_input; a test checks that they agree)
+# --------------------------------------------------------------------------------------------
+
+
+def impulse_matrices(chief_oe, t_burn_s, tf_s, t_ref_s, stm="j2"):
+    """Effect on the dimensionless ROE at ``tf_s`` of unit RTN impulses at ``t_burn_s``.
+
+    Parameters
+    ----------
+    chief_oe : array_like, shape (6,)
+        Chief mean elements at ``t_ref_s``.
+    t_burn_s : array_like, shape (J,)
+    tf_s : float or array_like, shape (J,)
+        Evaluation time(s).
+    t_ref_s : float
+    stm : {"j2", "kepler"}
+
+    Returns
+    -------
+    np.ndarray, shape (J, 6, 3)
+        :func:`guidance.dynamics.impulse_input` for each burn, per m/s.
+    """
+    t = np.atleast_1d(np.asarray(t_burn_s, dtype=float))
+    if t.size == 0:
+        return np.zeros((0, 6, 3))
+    a = float(chief_oe[0])
+    u = mean_arg_latitude(chief_oe, t, t_ref_s)
+    Phi = STM_MODELS[stm](chief_oe, np.broadcast_to(np.asarray(tf_s, dtype=float), t.shape) - t)
+    return np.einsum("kij,kjl->kil", Phi.reshape(-1, 6, 6), control_impulse(a, u).reshape(-1, 6, 3))
+
+
+def drag_matrices(chief_oe, s0_s, s1_s, tf_s, t_ref_s, stm="j2", n_quad=8):
+    """Effect on the dimensionless ROE at ``tf_s`` of 1 m/s^2 of differential along-track
+    acceleration held over each segment ``[s0, s1]``.
+
+    Gauss-Legendre quadrature with ``max(n_quad, ceil(n_quad * span / period))`` nodes, the rule of
+    :func:`guidance.dynamics.drag_segment_input`, vectorised over segments.
+
+    Parameters
+    ----------
+    s0_s, s1_s : array_like, shape (S,)
+    tf_s : float or array_like, shape (S,)
+
+    Returns
+    -------
+    np.ndarray, shape (S, 6)
+        Dimensionless ROE per m/s^2, one row per segment.
+    """
+    s0 = np.atleast_1d(np.asarray(s0_s, dtype=float))
+    s1 = np.atleast_1d(np.asarray(s1_s, dtype=float))
+    tf = np.broadcast_to(np.asarray(tf_s, dtype=float), s0.shape)
+    out = np.zeros((s0.size, 6))
+    if s0.size == 0:
+        return out
+    a = float(chief_oe[0])
+    period = 2 * np.pi / float(mean_motion(a))
+    span = s1 - s0
+    m_nodes = np.maximum(n_quad, np.ceil(n_quad * span / period).astype(int))
+    for m in np.unique(m_nodes):
+        sel = np.nonzero((m_nodes == m) & (span > 0))[0]
+        if sel.size == 0:
+            continue
+        x, w = np.polynomial.legendre.leggauss(int(m))
+        tau = s0[sel, None] + 0.5 * (x + 1.0)[None, :] * span[sel, None]  # (k, m)
+        u = mean_arg_latitude(chief_oe, tau.ravel(), t_ref_s)
+        bT = control_impulse(a, u).reshape(-1, 6, 3)[:, :, 1]  # (k*m, 6)
+        Phi = STM_MODELS[stm](chief_oe, (tf[sel, None] - tau).ravel()).reshape(-1, 6, 6)
+        val = np.einsum("kij,kj->ki", Phi, bT).reshape(sel.size, int(m), 6)
+        out[sel] = 0.5 * span[sel, None] * np.einsum("q,kqi->ki", w, val)
+    return out
+
+
+# --------------------------------------------------------------------------------------------
+# The convex program on scaled arrays: column generation over exact Euclidean directions
+# --------------------------------------------------------------------------------------------
+
+
+@dataclass
+class MinFuelSolution:
+    """Result of :meth:`MinFuelProgram.solve` (scaled problem).
+
+    Attributes
+    ----------
+    status : str
+        ``"ok"`` or ``"infeasible"`` (``message`` says why).
+    dv : np.ndarray, shape (J, 3)
+        Impulses, m/s (zero rows for unused candidates).
+    duty : np.ndarray, shape (S,)
+        High-drag fraction per drag column, in [0, 1].
+    slack : np.ndarray, shape (6,)
+        Miss of each row, m/s-equivalent (zero on hard rows).
+    cost : float
+        ``sum_j ||dv_j||``, m/s.
+    lower_bound : float
+        Certified lower bound on the optimal cost (including the price of soft-row misses), m/s.
+    lam : np.ndarray, shape (6,)
+        Dual variables.
+    residual : float
+        Largest error of the equality rows (soft misses counted as allowed), m/s-equivalent.
+    rounds : int
+        Column-generation rounds.
+    shortfall : float
+        For an infeasible problem, the distance from the reachable set certified along ``lam``
+        (m/s-equivalent), or the LP residual; 0 otherwise.
+    """
+
+    status: str
+    dv: np.ndarray
+    duty: np.ndarray
+    slack: np.ndarray
+    cost: float
+    lower_bound: float
+    lam: np.ndarray
+    residual: float
+    rounds: int
+    message: str = ""
+    shortfall: float = 0.0
+
+
+class MinFuelProgram:
+    """The min-fuel program on scaled arrays, solved by column generation (module docstring).
+
+    Parameters
+    ----------
+    G : np.ndarray, shape (J, 6, 3)
+        Impulse columns, scaled (m/s of right-hand side per m/s of impulse).
+    H : np.ndarray, shape (S, 6)
+        Drag duty columns (m/s of right-hand side per unit high-drag fraction).
+    delta : np.ndarray, shape (6,)
+        Required change beyond the free motion and the low-drag baseline, m/s.
+    dv_max : float or np.ndarray, shape (J,)
+        Largest impulse per candidate burn, m/s.
+    soft_weight : np.ndarray, shape (6,), optional
+        Price per m/s-equivalent of miss of each row; None makes every row exact.
+    warm_columns : sequence of (int, np.ndarray (3,)), optional
+        Burn directions to start from (e.g. the active burns of a previous plan).
+    """
+
+    BIG_M = 1e6
+    """Price of the artificial columns of hard rows (m/s per m/s-equivalent of residual)."""
+
+    def __init__(self, G, H, delta, dv_max, *, soft_weight=None, warm_columns=(), n_init=40):
+        if _highspy is None:  # pragma: no cover
+            raise ImportError("guidance.planning needs the 'highspy' package (HiGHS); "
+                              "pip install highspy")
+        self.G = np.asarray(G, dtype=float).reshape(-1, 6, 3)
+        self.H = np.asarray(H, dtype=float).reshape(-1, 6)
+        self.delta = np.asarray(delta, dtype=float).reshape(6)
+        self.J, self.S = self.G.shape[0], self.H.shape[0]
+        self.D = np.broadcast_to(np.asarray(dv_max, dtype=float), (self.J,)).astype(float)
+        self.soft = None if soft_weight is None else np.asarray(soft_weight, dtype=float).reshape(6)
+        self.excluded = np.zeros(self.J, dtype=bool)
+        self.rounds = 0
+        self._finite = bool(np.all(np.isfinite(self.G)) and np.all(np.isfinite(self.H))
+                            and np.all(np.isfinite(self.delta)) and np.all(np.isfinite(self.D)))
+        if not self._finite:
+            return
+        h = _highspy.Highs()
+        for k, v in (("output_flag", False), ("presolve", "off"),
+                     ("primal_feasibility_tolerance", 1e-10), ("dual_feasibility_tolerance", 1e-10)):
+            h.setOptionValue(k, v)
+        inf = _highspy.kHighsInf
+        e = np.array([], dtype=np.int32)
+        h.addRows(6, self.delta, self.delta, 0, e, e, np.array([]))
+        art_cost = self.soft if self.soft is not None else np.full(6, self.BIG_M)
+        rows6 = np.arange(6, dtype=np.int32)
+        for sgn in (1.0, -1.0):
+            h.addCols(6, art_cost, np.zeros(6), np.full(6, inf), 6, rows6, rows6, np.full(6, sgn))
+        if self.S:
+            h.addCols(self.S, np.zeros(self.S), np.zeros(self.S), np.ones(self.S), 6 * self.S,
+                      np.arange(self.S, dtype=np.int32) * 6, np.tile(rows6, self.S),
+                      self.H.ravel())
+        self._h = h
+        self._inf = inf
+        self._first_burn_col = 12 + self.S
+        self._nrow = 6
+        self._col_burn: list[int] = []
+        self._col_dir: list[np.ndarray] = []
+        self._cols_of: dict[int, list[int]] = {}
+        self._cap_row = -np.ones(self.J, dtype=np.int64)
+        # starting columns: warm ones, then +-R, +-T, +-N at a few burns spread over the horizon
+        cols = [(int(j), np.asarray(d, dtype=float) / np.linalg.norm(d))
+                for j, d in warm_columns if 0 <= j < self.J and np.linalg.norm(d) > 0]
+        if self.J:
+            spread = np.unique(np.linspace(0, self.J - 1, min(self.J, 16)).astype(int))
+            axes = np.vstack([np.eye(3), -np.eye(3)])
+            cols += [(int(j), d) for j in spread for d in axes]
+            cols += self._energy_columns(n_init)
+        if cols:
+            self._add_columns(cols)
+
+    def _energy_columns(self, k):
+        """Starting directions from the minimum-energy plan's multiplier.
+
+        The plan minimising ``sum ||dv_j||^2`` has ``dv_j = G_j^T lam0`` with
+        ``lam0 = (sum G_j G_j^T + sum h_s h_s^T)^-1 delta``; the burns where ``||G_j^T lam0||`` peaks
+        (local maxima in time) are good first guesses of the min-fuel burns.
+        """
+        W = np.einsum("jik,jlk->il", self.G, self.G) + self.H.T @ self.H
+        try:
+            lam0 = np.linalg.solve(W + 1e-12 * np.trace(W) * np.eye(6), self.delta)
+        except np.linalg.LinAlgError:
+            return []
+        A, f, _ = self._prices(lam0)
+        if not np.all(np.isfinite(f)) or f.max(initial=0.0) <= 0:
+            return []
+        fp = np.concatenate([[-np.inf], f, [-np.inf]])
+        loc = np.nonzero((f >= fp[:-2]) & (f >= fp[2:]) & (f > 0))[0]
+        sel = loc[np.argsort(-f[loc])[:k]]
+        return [(int(j), A[j] / f[j]) for j in sel]
+
+    # ---- LP bookkeeping ---------------------------------------------------------------------
+    def _add_columns(self, cols):
+        h, inf = self._h, self._inf
+        js = np.array([j for j, _ in cols])
+        new_count = {}
+        for j in js:
+            new_count[j] = new_count.get(j, 0) + 1
+        for j, k in new_count.items():
+            have = self._cols_of.get(j, [])
+            if self._cap_row[j] < 0 and len(have) + k > 1:
+                idx = np.array(have, dtype=np.int32)
+                h.addRow(-inf, float(self.D[j]), idx.size, idx, np.ones(idx.size))
+                self._cap_row[j] = self._nrow
+                self._nrow += 1
+        dirs = np.array([d for _, d in cols])
+        vals = np.einsum("mik,mk->mi", self.G[js], dirs)
+        starts, ind, val = [], [], []
+        for k, j in enumerate(js):
+            starts.append(len(ind))
+            ind.extend(range(6))
+            val.extend(vals[k])
+            if self._cap_row[j] >= 0:
+                ind.append(int(self._cap_row[j]))
+                val.append(1.0)
+        m = js.size
+        ub = np.where(self.excluded[js], 0.0, self.D[js])
+        h.addCols(m, np.ones(m), np.zeros(m), ub, len(ind), np.array(starts, dtype=np.int32),
+                  np.array(ind, dtype=np.int32), np.array(val))
+        base = self._first_burn_col + len(self._col_burn)
+        for k, (j, d) in enumerate(cols):
+            self._col_burn.append(j)
+            self._col_dir.append(d)
+            self._cols_of.setdefault(j, []).append(base + k)
+
+    def exclude(self, burns):
+        """Forbid candidate burns (fix their columns at zero and stop pricing them)."""
+        burns = np.atleast_1d(np.asarray(burns, dtype=int))
+        self.excluded[burns] = True
+        cols = [c for j in burns for c in self._cols_of.get(int(j), [])]
+        if cols and self._finite:
+            idx = np.array(cols, dtype=np.int32)
+            self._h.changeColsBounds(idx.size, idx, np.zeros(idx.size), np.zeros(idx.size))
+
+    # ---- certificates -----------------------------------------------------------------------
+    def _prices(self, lam):
+        A = np.einsum("jik,i->jk", self.G, lam)
+        f = np.sqrt(np.einsum("jk,jk->j", A, A))
+        c = self.H @ lam
+        return A, f, c
+
+    def lower_bound(self, lam):
+        """Dual value ``q(lam)`` (clipped to the soft-row box): a certified lower bound, m/s."""
+        lam = np.asarray(lam, dtype=float)
+        if self.soft is not None:
+            lam = np.clip(lam, -self.soft, self.soft)
+        _, f, c = self._prices(lam)
+        D = np.where(self.excluded, 0.0, self.D)
+        # an excluded burn has no capacity: its term is -0 * (f - 1)_+ ... but a zero-capacity
+        # column still constrains nothing, so the bound stays valid
+        return float(lam @ self.delta - np.sum(D * np.maximum(f - 1.0, 0.0)) - np.sum(np.maximum(c, 0.0)))
+
+    def shortfall(self, lam):
+        """``lam.delta - support(lam)`` for unit ``lam``: positive proves the target unreachable."""
+        if self.soft is not None:
+            return 0.0
+        nrm = float(np.linalg.norm(lam))
+        if not np.isfinite(nrm) or nrm == 0.0:
+            return 0.0
+        _, f, c = self._prices(lam / nrm)
+        D = np.where(self.excluded, 0.0, self.D)
+        return float(self.delta @ (lam / nrm) - np.sum(D * f) - np.sum(np.maximum(c, 0.0)))
+
+    # ---- solve --------------------------------------------------------------------------------
+    def solve(self, tol_rel=1e-6, tol_abs=1e-10, max_rounds=120, n_add=40):
+        """Run column-generation rounds to the gap tolerance.
+
+        Returns
+        -------
+        MinFuelSolution
+        """
+        J, S = self.J, self.S
+        empty = MinFuelSolution("ok", np.zeros((J, 3)), np.zeros(S), np.zeros(6), 0.0, 0.0,
+                                np.zeros(6), 0.0, self.rounds)
+        if not self._finite:
+            empty.status = "infeasible"
+            empty.message = "non-finite input to the planner (NaN or inf)"
+            return empty
+        scale = 1.0 + float(np.linalg.norm(self.delta))
+        best_lb, best_lam = -np.inf, np.zeros(6)
+        last = None
+        stall = 0
+        for _ in range(max_rounds):
+            self._h.run()
+            self.rounds += 1
+            sol = self._h.getSolution()
+            x = np.asarray(sol.col_value)
+            y = np.asarray(sol.row_dual)
+            lam = y[:6].copy()
+            A, f, c = self._prices(lam)
+            lb = self.lower_bound(lam)
+            if lb > best_lb:
+                best_lb, best_lam = lb, lam
+            art = x[:6] + x[6:12]
+            dv, ub = self._primal(x)
+            if self.soft is not None:
+                ub += float(np.sum(self.soft * art))
+                feasible = True
+            else:
+                feasible = float(np.max(art)) <= 1e-9 * scale
+            if feasible and ub - best_lb <= tol_abs + tol_rel * max(ub, 0.0):
+                break
+            if not feasible and self.shortfall(lam) > 1e-9 * scale:
+                break  # certified unreachable: no need to price further
+            ycap = np.where(self._cap_row >= 0, y[np.maximum(self._cap_row, 0)], 0.0) if J else np.zeros(0)
+            red = 1.0 - f - ycap
+            red[self.excluded] = np.inf
+            viol = np.nonzero(red < -1e-9)[0]
+            if viol.size == 0:
+                break
+            key = (round(ub, 12), round(best_lb, 12))
+            stall = stall + 1 if key == last else 0
+            last = key
+            if stall >= 3:
+                break
+            rp = np.concatenate([[np.inf], red, [np.inf]])
+            loc = viol[(red[viol] <= rp[viol]) & (red[viol] <= rp[viol + 2])]
+            sel = loc[np.argsort(red[loc])[:n_add]]
+            if sel.size < min(8, viol.size):
+                sel = np.union1d(sel, viol[np.argsort(red[viol])[:8]])
+            self._add_columns([(int(j), A[j] / f[j]) for j in sel])
+        sol = self._h.getSolution()
+        x = np.asarray(sol.col_value)
+        dv, cost = self._primal(x)
+        duty = np.clip(x[12:12 + S], 0.0, 1.0)
+        slack = x[:6] - x[6:12]
+        resid_vec = self.delta - np.einsum("jik,jk->i", self.G, dv) - self.H.T @ duty
+        if self.soft is None:
+            residual = float(np.max(np.abs(resid_vec)))
+            if residual > 1e-8 * scale:
+                cert = self.shortfall(best_lam)
+                msg = ("target unreachable with the candidate burns (each at most its per-burn "
+                       "maximum) and the drag authority before the deadline")
+                return MinFuelSolution("infeasible", np.zeros((J, 3)), np.zeros(S), np.zeros(6),
+                                       np.inf, best_lb, best_lam, residual, self.rounds, msg,
+                                       shortfall=max(cert, residual))
+            slack = np.zeros(6)
+        else:
+            residual = float(np.max(np.abs(resid_vec - slack)))
+        return MinFuelSolution("ok", dv, duty, slack, cost, min(best_lb, cost + (
+            0.0 if self.soft is None else float(np.sum(self.soft * np.abs(slack))))),
+            best_lam, residual, self.rounds)
+
+    def _primal(self, x):
+        dv = np.zeros((self.J, 3))
+        if self._col_burn:
+            xb = np.clip(x[self._first_burn_col:], 0.0, None)
+            np.add.at(dv, np.array(self._col_burn), xb[:, None] * np.array(self._col_dir))
+            # the capacity rows guarantee sum(mu) <= D; clip round-off so |dv| <= D exactly
+            nrm = np.linalg.norm(dv, axis=1)
+            over = nrm > self.D
+            if np.any(over):
+                dv[over] *= (self.D[over] / nrm[over])[:, None]
+        return dv, float(np.sum(np.linalg.norm(dv, axis=1)))
+
+
+def solve_min_fuel(G, H, delta, dv_max, *, soft_weight=None, tol_rel=1e-6, warm_columns=()):
+    """One-shot form of :class:`MinFuelProgram` (see there for the arguments)."""
+    prog = MinFuelProgram(G, H, delta, dv_max, soft_weight=soft_weight, warm_columns=warm_columns)
+    return prog.solve(tol_rel=tol_rel)
+
+
+# --------------------------------------------------------------------------------------------
+# Plans in physical units
+# --------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class PlanRequest:
+    """One deputy's planning problem in physical units.
+
+    Attributes
+    ----------
+    chief_oe : np.ndarray, shape (6,)
+        Chief mean elements at ``t0_s`` (``a_m, ex, ey, i_rad, raan_rad, u_rad``).
+    t0_s, deadline_s : float
+        Solve time and deadline, s since epoch.
+    roe0 : np.ndarray, shape (6,)
+        Mean ROE at ``t0_s``, dimensionless.
+    roe_target : np.ndarray, shape (6,)
+        Target mean ROE at the deadline, dimensionless.
+    burn_t_s : np.ndarray, shape (J,)
+        Candidate burn times in ``[t0_s, deadline_s]``.
+    dv_max_mps : float
+        Per-burn maximum delta-v, m/s.
+    dv_min_mps : float
+        Smallest deliverable delta-v (minimum impulse bit / mass), m/s.
+    seg_t0_s, seg_t1_s : np.ndarray, shape (S,)
+        Drag segments (may be empty).
+    w_low_mps2, w_high_mps2 : np.ndarray, shape (S,)
+        Differential along-track acceleration in the low- and high-drag mode per segment, m/s^2.
+    fixed_duty : np.ndarray, shape (S,), optional
+        When given the drag is not planned: the high-drag fraction is fixed to it.
+    fixed_burns_t_s : np.ndarray, shape (F,)
+    fixed_burns_dv_rtn_mps : np.ndarray, shape (F, 3)
+        Impulses that are already decided (kept as they are, counted in the cost).
+    soft_weight_mps_per_m : np.ndarray, shape (6,), optional
+        Make rows soft: price of a miss, m/s per a-scaled metre (None: hit the target exactly).
+    stm : {"j2", "kepler"}
+    warm_columns : tuple
+        ``(time_s, unit direction (3,))`` of burns to start from.
+    """
+
+    chief_oe: np.ndarray
+    t0_s: float
+    deadline_s: float
+    roe0: np.ndarray
+    roe_target: np.ndarray
+    burn_t_s: np.ndarray
+    dv_max_mps: float
+    dv_min_mps: float = 0.0
+    seg_t0_s: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    seg_t1_s: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    w_low_mps2: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    w_high_mps2: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    fixed_duty: np.ndarray | None = None
+    fixed_burns_t_s: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    fixed_burns_dv_rtn_mps: np.ndarray = field(default_factory=lambda: np.zeros((0, 3)))
+    soft_weight_mps_per_m: np.ndarray | None = None
+    stm: str = "j2"
+    warm_columns: tuple = ()
+
+
+@dataclass
+class Plan:
+    """A deputy's plan and its prediction in the planner's own model.
+
+    Attributes
+    ----------
+    status : str
+        ``"ok"``, ``"degraded"`` (a plan, but the target is missed; ``message`` says why) or
+        ``"infeasible"`` (no plan; the commands hold).
+    message : str
+    request : PlanRequest
+    burn_t_s : np.ndarray, shape (K,)
+        Times of the impulses (fixed and new), sorted, s.
+    dv_rtn_mps : np.ndarray, shape (K, 3)
+        The impulses, RTN, m/s.
+    duty : np.ndarray, shape (S,)
+        High-drag fraction per segment (0 when the segment is not planned).
+    w_mps2 : np.ndarray, shape (S,)
+        Planned mean differential along-track acceleration per segment, m/s^2.
+    cost_mps : float
+        Sum of the impulse norms from ``t0`` on, m/s.
+    lower_bound_mps : float
+        Certified lower bound of the optimal cost of the last solve, m/s (includes fixed burns).
+    roe_final : np.ndarray, shape (6,)
+        Predicted mean ROE at the deadline, dimensionless.
+    miss_m : np.ndarray, shape (6,)
+        ``a (roe_final - roe_target)``, a-scaled metres.
+    solve_time_s : float
+    rounds : int
+        Column-generation rounds used.
+    dropped_small : int
+        Impulses excluded for being below the minimum impulse bit.
+    """
+
+    status: str
+    message: str
+    request: PlanRequest
+    burn_t_s: np.ndarray
+    dv_rtn_mps: np.ndarray
+    duty: np.ndarray
+    w_mps2: np.ndarray
+    cost_mps: float
+    lower_bound_mps: float
+    roe_final: np.ndarray
+    miss_m: np.ndarray
+    solve_time_s: float = 0.0
+    rounds: int = 0
+    dropped_small: int = 0
+
+    def cost_after(self, t_s: float) -> float:
+        """Delta-v of the impulses at or after ``t_s``, m/s."""
+        keep = self.burn_t_s >= t_s - 1e-9
+        return float(np.sum(np.linalg.norm(self.dv_rtn_mps[keep], axis=1)))
+
+    def roe_at(self, t_s) -> np.ndarray:
+        """Predicted mean ROE at times ``t_s`` (in ``[t0, deadline]``), dimensionless.
+
+        The free motion and the impulses are propagated in one step from ``t0``, exactly like the
+        planner; the drag is accumulated segment by segment (the same STM applied piecewise,
+        which for a circular chief is the same model and otherwise differs at second order in
+        ``kappa e tau``).
+
+        Returns
+        -------
+        np.ndarray, shape (K, 6) (or (6,) for a scalar time)
+        """
+        r = self.request
+        ts = np.atleast_1d(np.asarray(t_s, dtype=float))
+        stm = STM_MODELS[r.stm]
+        out = stm(r.chief_oe, ts - r.t0_s).reshape(-1, 6, 6) @ r.roe0
+        if self.burn_t_s.size:
+            for k, t in enumerate(ts):
+                sel = self.burn_t_s <= t + 1e-9
+                if np.any(sel):
+                    Gm = impulse_matrices(r.chief_oe, self.burn_t_s[sel], t, r.t0_s, r.stm)
+                    out[k] += np.einsum("jik,jk->i", Gm, self.dv_rtn_mps[sel])
+        if r.seg_t0_s.size and np.any(self.w_mps2 != 0):
+            order = np.argsort(ts)
+            y = np.zeros(6)
+            t_prev = r.t0_s
+            for k in order:
+                t = ts[k]
+                y = stm(r.chief_oe, t - t_prev) @ y
+                a0 = np.maximum(r.seg_t0_s, t_prev)
+                a1 = np.minimum(r.seg_t1_s, t)
+                sel = (a1 > a0) & (self.w_mps2 != 0)
+                if np.any(sel):
+                    g = drag_matrices(r.chief_oe, a0[sel], a1[sel], t, r.t0_s, r.stm)
+                    y = y + g.T @ self.w_mps2[sel]
+                out[k] += y
+                t_prev = t
+        return out[0] if np.ndim(t_s) == 0 else out
+
+
+def _infeasible_plan(req, message, t_solve=0.0, lower_bound=np.inf):
+    S = np.asarray(req.seg_t0_s).size
+    a = float(req.chief_oe[0])
+    roe_free = np.full(6, np.nan)
+    try:
+        roe_free = STM_MODELS[req.stm](req.chief_oe, req.deadline_s - req.t0_s) @ req.roe0
+    except Exception:  # noqa: BLE001 - the message already says what is wrong
+        pass
+    miss = a * (roe_free - req.roe_target) if np.all(np.isfinite(roe_free)) else np.full(6, np.nan)
+    return Plan("infeasible", message, req, np.zeros(0), np.zeros((0, 3)), np.zeros(S), np.zeros(S),
+                0.0, lower_bound, roe_free, miss, t_solve)
+
+
+def plan_deputy(req: PlanRequest, *, tol_rel=1e-6, max_min_bit_rounds=5, target_tol_m=0.01) -> Plan:
+    """Plan one deputy: build the program, solve it, enforce the minimum impulse bit.
+
+    Parameters
+    ----------
+    req : PlanRequest
+    tol_rel : float
+        Relative optimality gap of each solve.
+    max_min_bit_rounds : int
+        Rounds of excluding impulses below the minimum impulse bit and re-solving.
+    target_tol_m : float
+        A plan whose predicted miss exceeds this (a-scaled metres, any component) is
+        ``"degraded"``.
+
+    Returns
+    -------
+    Plan
+        Never raises for infeasible or non-finite input: the status and message say why.
+    """
+    t_start = time.perf_counter()
+    vals = [req.chief_oe, req.roe0, req.roe_target, req.burn_t_s, req.seg_t0_s, req.seg_t1_s,
+            req.w_low_mps2, req.w_high_mps2, req.fixed_burns_dv_rtn_mps, req.fixed_burns_t_s,
+            [req.t0_s, req.deadline_s, req.dv_max_mps, req.dv_min_mps]]
+    if not all(np.all(np.isfinite(np.asarray(v, dtype=float))) for v in vals):
+        return _infeasible_plan(req, "non-finite planner input (NaN or inf in the navigation "
+                                     "state, target or spacecraft data)")
+    if req.deadline_s <= req.t0_s:
+        return _infeasible_plan(req, f"deadline {req.deadline_s:.1f} s is not after the solve time "
+                                     f"{req.t0_s:.1f} s")
+    chief = np.asarray(req.chief_oe, dtype=float)
+    a = float(chief[0])
+    na = float(mean_motion(a)) * a
+    T = float(req.deadline_s)
+    stm = STM_MODELS[req.stm]
+    # --- right-hand side: free motion, low-drag baseline, fixed drag and impulses
+    x_free = stm(chief, T - req.t0_s) @ np.asarray(req.roe0, dtype=float)
+    s0 = np.asarray(req.seg_t0_s, dtype=float)
+    s1 = np.asarray(req.seg_t1_s, dtype=float)
+    w_lo = np.asarray(req.w_low_mps2, dtype=float)
+    w_hi = np.asarray(req.w_high_mps2, dtype=float)
+    g = drag_matrices(chief, s0, s1, T, req.t0_s, req.stm)  # (S,6)
+    span = w_hi - w_lo
+    if req.fixed_duty is not None:
+        fixed_duty = np.clip(np.asarray(req.fixed_duty, dtype=float), 0.0, 1.0)
+        w_base = w_lo + fixed_duty * span
+        var = np.zeros(s0.size, dtype=bool)
+    else:
+        w_base = w_lo.copy()
+        var = np.abs(span) > 0
+    x_known = x_free + g.T @ w_base
+    ft = np.asarray(req.fixed_burns_t_s, dtype=float)
+    fdv = np.asarray(req.fixed_burns_dv_rtn_mps, dtype=float).reshape(-1, 3)
+    if ft.size:
+        x_known = x_known + np.einsum("jik,jk->i", impulse_matrices(chief, ft, T, req.t0_s, req.stm), fdv)
+    delta = na * (np.asarray(req.roe_target, dtype=float) - x_known)
+    # --- columns
+    tb = np.asarray(req.burn_t_s, dtype=float)
+    tb = tb[(tb >= req.t0_s - 1e-9) & (tb <= T + 1e-9)]
+    if req.dv_max_mps <= 0:
+        tb = np.zeros(0)
+    G = na * impulse_matrices(chief, tb, T, req.t0_s, req.stm)
+    Hcols = na * g[var] * span[var, None]
+    soft = None
+    if req.soft_weight_mps_per_m is not None:
+        # price per m/s-equivalent = price per metre / n (rows are n a times dimensionless ROE)
+        soft = np.asarray(req.soft_weight_mps_per_m, dtype=float) / float(mean_motion(a))
+    warm = []
+    for t_w, d_w in req.warm_columns:
+        j = int(np.argmin(np.abs(tb - t_w))) if tb.size else -1
+        if j >= 0 and abs(tb[j] - t_w) < 1e-3:
+            warm.append((j, np.asarray(d_w, dtype=float)))
+    if tb.size == 0 and not np.any(var) and soft is None:
+        if np.max(np.abs(delta)) / float(mean_motion(a)) <= target_tol_m:
+            return _finish(req, tb, np.zeros((0, 3)), var, np.zeros(0), w_base, span, 0.0,
+                           0, 0, t_start, "ok", "", target_tol_m)
+        what = "no candidate burn before the deadline"
+        if s0.size and not np.any(np.abs(span) > 0):
+            what += " and zero drag authority (the deputy's drag modes do not differ)"
+        elif s0.size == 0:
+            what += " and no drag segment"
+        return _infeasible_plan(req, what + "; the target differs from the free drift",
+                                time.perf_counter() - t_start)
+    prog = MinFuelProgram(G, Hcols, delta, req.dv_max_mps, soft_weight=soft, warm_columns=warm)
+    sol = prog.solve(tol_rel=tol_rel)
+    if sol.status != "ok":
+        msg = sol.message
+        if sol.shortfall > 0 and np.isfinite(sol.shortfall):
+            msg += f" (short by about {sol.shortfall / float(mean_motion(a)):.3g} m in a-scaled ROE)"
+        if req.fixed_duty is None and s0.size and not np.any(np.abs(span) > 0) and tb.size == 0:
+            msg += "; the drag authority is zero (the deputy's drag modes do not differ)"
+        return _infeasible_plan(req, msg, time.perf_counter() - t_start, sol.lower_bound)
+    # --- minimum impulse bit: exclude small impulses and re-solve (their dv merges elsewhere)
+    dropped = 0
+    status, message = "ok", ""
+    dv_min = max(float(req.dv_min_mps), 0.0)
+    if tb.size and TINY_DV_MPS < sol.cost < dv_min:
+        # even the optimum is below one minimum impulse bit: no deliverable impulse can help
+        # (unless the drag alone can do it)
+        n_small = int(np.sum(np.linalg.norm(sol.dv, axis=1) > TINY_DV_MPS))
+        prog.exclude(np.arange(tb.size))
+        trial = prog.solve(tol_rel=tol_rel) if np.any(var) or soft is not None else None
+        dropped += n_small
+        if trial is not None and trial.status == "ok":
+            sol = trial
+        else:
+            sol.dv[:] = 0.0
+            status = "degraded"
+            message = (f"the whole correction ({sol.cost:.3g} m/s) is below the minimum impulse "
+                       f"bit ({dv_min:.3g} m/s): no impulse planned")
+    for _ in range(max_min_bit_rounds):
+        mag = np.linalg.norm(sol.dv, axis=1)
+        small = np.nonzero((mag > TINY_DV_MPS) & (mag < dv_min))[0]
+        if small.size == 0:
+            break
+        prog.exclude(small)
+        dropped += small.size
+        trial = prog.solve(tol_rel=tol_rel)
+        if trial.status != "ok":
+            # no plan without them: drop them and report the miss
+            sol.dv[small] = 0.0
+            status = "degraded"
+            message = (f"{small.size} impulse(s) below the minimum impulse bit "
+                       f"({dv_min:.3g} m/s) dropped; no plan without them reaches the target")
+            break
+        sol = trial
+    mag = np.linalg.norm(sol.dv, axis=1)
+    bad = (mag > TINY_DV_MPS) & (mag < dv_min)
+    if np.any(bad):
+        sol.dv[bad] = 0.0
+        status = "degraded"
+        message = message or (f"{int(bad.sum())} impulse(s) below the minimum impulse bit "
+                              f"({dv_min:.3g} m/s) dropped after {max_min_bit_rounds} re-solves")
+    sol.dv[np.linalg.norm(sol.dv, axis=1) <= TINY_DV_MPS] = 0.0
+    duty_var = sol.duty
+    plan = _finish(req, tb, sol.dv, var, duty_var, w_base, span,
+                   sol.lower_bound + float(np.sum(np.linalg.norm(fdv, axis=1))), sol.rounds,
+                   dropped, t_start, status, message, target_tol_m)
+    return plan
+
+
+def _finish(req, tb, dv, var, duty_var, w_base, span, lower_bound, rounds, dropped, t_start,
+            status, message, target_tol_m):
+    S = np.asarray(req.seg_t0_s).size
+    duty = np.zeros(S) if req.fixed_duty is None else np.clip(np.asarray(req.fixed_duty, float), 0, 1)
+    if req.fixed_duty is None and S:
+        duty[var] = duty_var
+    w = w_base + (duty * span if req.fixed_duty is None else 0.0)
+    used = np.linalg.norm(dv, axis=1) > 0 if dv.size else np.zeros(0, dtype=bool)
+    ft = np.asarray(req.fixed_burns_t_s, dtype=float)
+    fdv = np.asarray(req.fixed_burns_dv_rtn_mps, dtype=float).reshape(-1, 3)
+    bt = np.concatenate([ft, tb[used]])
+    bdv = np.concatenate([fdv, dv[used]]) if bt.size else np.zeros((0, 3))
+    order = np.argsort(bt, kind="stable")
+    bt, bdv = bt[order], bdv[order]
+    cost = float(np.sum(np.linalg.norm(bdv, axis=1)))
+    chief = np.asarray(req.chief_oe, dtype=float)
+    a = float(chief[0])
+    T = float(req.deadline_s)
+    xf = STM_MODELS[req.stm](chief, T - req.t0_s) @ np.asarray(req.roe0, dtype=float)
+    if S:
+        xf = xf + drag_matrices(chief, req.seg_t0_s, req.seg_t1_s, T, req.t0_s, req.stm).T @ w
+    if bt.size:
+        xf = xf + np.einsum("jik,jk->i", impulse_matrices(chief, bt, T, req.t0_s, req.stm), bdv)
+    miss = a * (xf - np.asarray(req.roe_target, dtype=float))
+    if status == "ok" and np.max(np.abs(miss)) > target_tol_m:
+        if req.soft_weight_mps_per_m is not None:
+            status = "degraded"
+            worst = int(np.argmax(np.abs(miss)))
+            message = (f"target missed by up to {np.max(np.abs(miss)):.3g} m (a-scaled, component "
+                       f"{worst}) with the controls allowed")
+        else:
+            status = "degraded"
+            message = f"target missed by up to {np.max(np.abs(miss)):.3g} m (a-scaled)"
+    elif status == "degraded" and not message.endswith("m (a-scaled)"):
+        message += f"; predicted miss up to {np.max(np.abs(miss)):.3g} m (a-scaled)"
+    return Plan(status, message, req, bt, bdv, duty, w, cost, min(lower_bound, cost), xf, miss,
+                time.perf_counter() - t_start, rounds, dropped)
+
+
+# --------------------------------------------------------------------------------------------
+# Duty cycles -> time-tagged attitude-mode switches
+# --------------------------------------------------------------------------------------------
+
+
+def realise_duty_schedule(seg_t0_s, seg_t1_s, duty, t_now_s, *, slew_s=0.0, min_dwell_s=0.0,
+                          high_mode="max_drag", low_mode="min_drag", current_mode=None,
+                          end_mode=None):
+    """Turn per-segment high-drag fractions into time-tagged mode switches.
+
+    In segment ``s`` the high-drag mode is held for ``duty[s]`` of its length, centred in the
+    segment (so the mean acceleration and its first moment over the segment match the planner's
+    constant-acceleration model). Adjacent high-drag intervals merge; a gap or an interval shorter
+    than ``max(min_dwell_s, slew_s)`` is removed (gap filled, interval dropped). A slew is modelled
+    as an instantaneous change at its midpoint, so a switch is commanded ``slew_s / 2`` before the
+    instant it should take effect (never before ``t_now_s``).
+
+    Parameters
+    ----------
+    seg_t0_s, seg_t1_s, duty : np.ndarray, shape (S,)
+    t_now_s : float
+        Earliest allowed command time, s.
+    slew_s, min_dwell_s : float
+        Slew duration and shortest dwell, s.
+    high_mode, low_mode : str
+    current_mode : str, optional
+        Mode the spacecraft is commanded to now (no switch is emitted into it at ``t_now_s``).
+    end_mode : str, optional
+        Mode to take effect at the end of the last segment (e.g. the formation-keeping mode).
+
+    Returns
+    -------
+    switches : list of (float, str)
+        Time-ordered ``(t_s, mode)`` commands, all ``>= t_now_s``, no two equal modes in a row.
+    realised_duty : np.ndarray, shape (S,)
+        High-drag fraction per segment that the switches produce (effective times).
+    """
+    s0 = np.asarray(seg_t0_s, dtype=float)
+    s1 = np.asarray(seg_t1_s, dtype=float)
+    d = np.clip(np.asarray(duty, dtype=float), 0.0, 1.0)
+    S = s0.size
+    if S == 0:
+        sw = [] if end_mode is None or end_mode == current_mode else [(float(t_now_s), end_mode)]
+        return sw, np.zeros(0)
+    dwell = max(float(min_dwell_s), float(slew_s), 0.0)
+    mid = 0.5 * (s0 + s1)
+    half = 0.5 * d * (s1 - s0)
+    iv = [[m - h, m + h] for m, h, dd in zip(mid, half, d) if dd > 1e-12]
+    merged = []
+    for a0, a1 in iv:
+        if merged and a0 - merged[-1][1] < max(dwell, 1e-6):
+            merged[-1][1] = max(merged[-1][1], a1)
+        else:
+            merged.append([a0, a1])
+    merged = [m for m in merged if m[1] - m[0] >= max(dwell, 1e-9)]
+    t_start, t_end = float(s0[0]), float(s1[-1])
+    # effective mode changes
+    events = []  # (effective time, mode)
+    if not merged or merged[0][0] > t_start + 1e-9:
+        events.append((t_start, low_mode))
+    for a0, a1 in merged:
+        events.append((max(a0, t_start), high_mode))
+        if a1 < t_end - 1e-9:
+            events.append((a1, low_mode))
+    if end_mode is not None:
+        events.append((t_end, end_mode))
+    # commands: effective time minus half a slew, not before now; merge equal consecutive modes
+    switches = []
+    mode = current_mode
+    eff = []  # realised effective (time, mode)
+    for te, m in events:
+        if m == mode:
+            continue
+        tc = max(te - 0.5 * slew_s, float(t_now_s))
+        if switches and tc <= switches[-1][0] + 1e-9:
+            # two commands at the same instant (start of the schedule): keep the later mode
+            switches[-1] = (switches[-1][0], m)
+            eff[-1] = (eff[-1][0], m)
+        else:
+            switches.append((tc, m))
+            eff.append((tc + 0.5 * slew_s if tc > te - 0.5 * slew_s + 1e-9 else te, m))
+        mode = m
+    # drop no-op switches produced by the merge above
+    clean, last = [], current_mode
+    for tc, m in switches:
+        if m != last:
+            clean.append((tc, m))
+            last = m
+    # realised high-drag fraction per segment from the effective timeline
+    realised = np.zeros(S)
+    timeline = [(t_start, current_mode)] + eff
+    for k, (te, m) in enumerate(timeline):
+        if m != high_mode:
+            continue
+        te1 = timeline[k + 1][0] if k + 1 < len(timeline) else np.inf
+        lo = np.maximum(s0, te)
+        hi = np.minimum(s1, te1)
+        realised += np.clip(hi - lo, 0.0, None)
+    realised = np.where(s1 > s0, realised / np.maximum(s1 - s0, 1e-300), 0.0)
+    return clean, np.clip(realised, 0.0, 1.0)
