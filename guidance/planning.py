@@ -67,6 +67,32 @@ try:  # HiGHS's own bindings (a dependency of covey); imported lazily for a clea
 except ImportError:  # pragma: no cover - exercised only on a broken install
     _highspy = None
 
+_HIGHS_GREETED = False
+
+
+def _new_highs():
+    """A HiGHS instance; the first one of the process is built with file descriptor 1 muted,
+    because HiGHS prints its copyright banner from C++ on first construction (before any option
+    can be set) and guidance must not write to the user's standard output."""
+    global _HIGHS_GREETED
+    if _HIGHS_GREETED:
+        return _highspy.Highs()
+    import os
+    import sys
+    sys.stdout.flush()
+    saved = os.dup(1)
+    try:
+        with open(os.devnull, "w") as null:
+            os.dup2(null.fileno(), 1)
+            h = _highspy.Highs()
+            h.setOptionValue("output_flag", False)
+    finally:
+        os.dup2(saved, 1)
+        os.close(saved)
+        _HIGHS_GREETED = True
+    return h
+
+
 STM_MODELS = {"j2": stm_j2, "kepler": stm_kepler}
 """Dynamics models a plan may use (names -> STM functions of :mod:`guidance.dynamics`)."""
 
@@ -310,7 +336,7 @@ class MinFuelProgram:
                             and np.all(np.isfinite(self.delta)) and np.all(np.isfinite(self.D)))
         if not self._finite:
             return
-        h = _highspy.Highs()
+        h = _new_highs()
         for k, v in (("output_flag", False), ("presolve", "off"),
                      ("primal_feasibility_tolerance", 1e-10), ("dual_feasibility_tolerance", 1e-10)):
             h.setOptionValue(k, v)
@@ -653,10 +679,10 @@ class Plan:
     def roe_at(self, t_s) -> np.ndarray:
         """Predicted mean ROE at times ``t_s`` (in ``[t0, deadline]``), dimensionless.
 
-        The free motion and the impulses are propagated in one step from ``t0``, exactly like the
-        planner; the drag is accumulated segment by segment (the same STM applied piecewise,
-        which for a circular chief is the same model and otherwise differs at second order in
-        ``kappa e tau``).
+        The free motion and the impulses are propagated in one step from ``t0``, exactly as the
+        planner does; the drag is accumulated between consecutive sample times (the same STM
+        applied piecewise: for a circular chief the same model, otherwise different at second
+        order in ``kappa e tau``).
 
         Returns
         -------
@@ -665,28 +691,33 @@ class Plan:
         r = self.request
         ts = np.atleast_1d(np.asarray(t_s, dtype=float))
         stm = STM_MODELS[r.stm]
-        out = stm(r.chief_oe, ts - r.t0_s).reshape(-1, 6, 6) @ r.roe0
+        out = stm(r.chief_oe, ts - r.t0_s).reshape(-1, 6, 6) @ np.asarray(r.roe0, dtype=float)
         if self.burn_t_s.size:
-            for k, t in enumerate(ts):
-                sel = self.burn_t_s <= t + 1e-9
-                if np.any(sel):
-                    Gm = impulse_matrices(r.chief_oe, self.burn_t_s[sel], t, r.t0_s, r.stm)
-                    out[k] += np.einsum("jik,jk->i", Gm, self.dv_rtn_mps[sel])
-        if r.seg_t0_s.size and np.any(self.w_mps2 != 0):
+            kk, jj = np.nonzero(self.burn_t_s[None, :] <= ts[:, None] + 1e-9)
+            if kk.size:
+                Gm = impulse_matrices(r.chief_oe, self.burn_t_s[jj], ts[kk], r.t0_s, r.stm)
+                np.add.at(out, kk, np.einsum("pik,pk->pi", Gm, self.dv_rtn_mps[jj]))
+        s0 = np.asarray(r.seg_t0_s, dtype=float)
+        s1 = np.asarray(r.seg_t1_s, dtype=float)
+        if s0.size and np.any(self.w_mps2 != 0):
             order = np.argsort(ts)
+            tso = ts[order]
+            prev = np.concatenate([[r.t0_s], tso[:-1]])
+            # pieces: every segment clipped to every sample interval it overlaps
+            lo = np.maximum(s0[None, :], prev[:, None])
+            hi = np.minimum(s1[None, :], tso[:, None])
+            kk, ss = np.nonzero((hi > lo) & (self.w_mps2 != 0)[None, :])
+            inc = np.zeros((tso.size, 6))
+            if kk.size:
+                g = drag_matrices(r.chief_oe, lo[kk, ss], hi[kk, ss], tso[kk], r.t0_s, r.stm)
+                np.add.at(inc, kk, g * self.w_mps2[ss, None])
+            steps = stm(r.chief_oe, tso - prev).reshape(-1, 6, 6)
             y = np.zeros(6)
-            t_prev = r.t0_s
-            for k in order:
-                t = ts[k]
-                y = stm(r.chief_oe, t - t_prev) @ y
-                a0 = np.maximum(r.seg_t0_s, t_prev)
-                a1 = np.minimum(r.seg_t1_s, t)
-                sel = (a1 > a0) & (self.w_mps2 != 0)
-                if np.any(sel):
-                    g = drag_matrices(r.chief_oe, a0[sel], a1[sel], t, r.t0_s, r.stm)
-                    y = y + g.T @ self.w_mps2[sel]
-                out[k] += y
-                t_prev = t
+            acc = np.zeros((tso.size, 6))
+            for k in range(tso.size):
+                y = steps[k] @ y + inc[k]
+                acc[k] = y
+            out[order] += acc
         return out[0] if np.ndim(t_s) == 0 else out
 
 
@@ -841,6 +872,26 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-6, max_min_bit_rounds=5, target_
                    sol.lower_bound + float(np.sum(np.linalg.norm(fdv, axis=1))), sol.rounds,
                    dropped, t_start, status, message, target_tol_m)
     return plan
+
+
+def predict_plan(req: PlanRequest, burn_t_s, dv_rtn_mps, duty=None, *, target_tol_m=0.01,
+                 status="ok", message="") -> Plan:
+    """A :class:`Plan` for given impulses and duty cycles (no optimisation), with its prediction.
+
+    The impulses given are taken in addition to ``req.fixed_burns_*``; ``duty`` (shape (S,)) is the
+    high-drag fraction per segment (default: ``req.fixed_duty`` or zero). The status is ``"ok"``
+    unless the predicted miss exceeds ``target_tol_m`` (then ``"degraded"``).
+    """
+    S = np.asarray(req.seg_t0_s).size
+    if duty is None:
+        duty = np.zeros(S) if req.fixed_duty is None else req.fixed_duty
+    w_lo = np.asarray(req.w_low_mps2, dtype=float)
+    span = np.asarray(req.w_high_mps2, dtype=float) - w_lo
+    r2 = PlanRequest(**{**req.__dict__, "fixed_duty": np.clip(np.asarray(duty, float), 0.0, 1.0)})
+    tb = np.asarray(burn_t_s, dtype=float).reshape(-1)
+    dv = np.asarray(dv_rtn_mps, dtype=float).reshape(-1, 3)
+    return _finish(r2, tb, dv, np.zeros(S, dtype=bool), np.zeros(0), w_lo + r2.fixed_duty * span,
+                   span, 0.0, 0, 0, time.perf_counter(), status, message, target_tol_m)
 
 
 def _finish(req, tb, dv, var, duty_var, w_base, span, lower_bound, rounds, dropped, t_start,

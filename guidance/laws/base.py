@@ -1,0 +1,438 @@
+"""Shared machinery of covey's planner-based laws: settings, navigation, requests, commands.
+
+A law built on :class:`PlannerLaw` declares three class attributes:
+
+- ``NAME``: its registry name;
+- ``PLAN_DRAG``: whether the deputies' drag duty cycles are planned (hybrid) or the deputies hold
+  ``hold_mode`` with the differential drag as a known disturbance (propulsion only);
+- ``EXTRA_SETTINGS``: its own settings (name -> (default, checker, description)).
+
+and may override :meth:`PlannerLaw._wants_plan` (when to re-plan) and
+:meth:`PlannerLaw._request_hook` (how a re-plan differs from the first plan).
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import dataclass, field, replace
+from typing import Any, Callable, Mapping
+
+import numpy as np
+
+from ..density import DensityModel, differential_along_track_accel_mps2, relative_wind_speed_mps
+from ..constants import R_EARTH_M
+from ..dynamics import mean_motion
+from ..estimation import nav_to_mean
+from ..interface import (Diagnostics, GuidanceInputError, GuidanceOutput, Impulse, Mission,
+                         ModeSwitch, NavSolution, SpacecraftCaps, SpacecraftCommand)
+from ..planning import (STM_MODELS, Plan, PlanRequest, burn_grid, chief_period_s, plan_deputy,
+                        predict_plan, propagate_chief, realise_duty_schedule, segment_grid)
+
+HIGH_DRAG_MODE = "max_drag"
+LOW_DRAG_MODE = "min_drag"
+
+# ------------------------------------------------------------------------------------------
+# Settings
+# ------------------------------------------------------------------------------------------
+
+
+def _number(lo=None, hi=None, integer=False, unit=""):
+    """Checker for a finite number (optionally an integer) in [lo, hi]."""
+
+    def check(key, v):
+        ok = isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool)
+        if ok:
+            ok = math.isfinite(float(v)) and (not integer or float(v).is_integer())
+            ok = ok and (lo is None or float(v) >= lo) and (hi is None or float(v) <= hi)
+        if not ok:
+            kind = "an integer" if integer else "a number"
+            rng = f" from {lo:g}" if lo is not None else ""
+            rng += f" to {hi:g}" if hi is not None else (" or more" if lo is not None else "")
+            raise GuidanceInputError(key, v, f"{kind}{rng}{' ' + unit if unit else ''}")
+        return int(v) if integer else float(v)
+
+    return check
+
+
+def _choice(*options):
+    def check(key, v):
+        if v not in options:
+            raise GuidanceInputError(key, v, "one of " + ", ".join(repr(o) for o in options))
+        return v
+
+    return check
+
+
+def _string(key, v):
+    if not isinstance(v, str) or not v:
+        raise GuidanceInputError(key, v, "a non-empty string (an attitude mode name)")
+    return v
+
+
+def _optional(check):
+    def inner(key, v):
+        return None if v is None else check(key, v)
+
+    return inner
+
+
+COMMON_SETTINGS: dict[str, tuple[Any, Callable, str]] = {
+    "burns_per_orbit": (8, _number(1, 720, integer=True), "candidate burn times per chief orbit"),
+    "segments_per_orbit": (4, _number(1, 360, integer=True), "drag segments per chief orbit"),
+    "chief_mode": ("nominal", _string, "attitude mode the chief holds"),
+    "hold_mode": (None, _optional(_string),
+                  "mode a deputy holds when its drag is not planned and after its deadline "
+                  "(default: chief_mode)"),
+    "min_dwell_s": (0.0, _number(0.0, unit="s"),
+                    "shortest time in a mode; shorter high- or low-drag spells are removed "
+                    "(the slew time is always a floor), s"),
+    "burn_margin_s": (60.0, _number(0.0, unit="s"),
+                      "no new burn earlier than this after the solve time, s"),
+    "stm": ("j2", _choice(*STM_MODELS), "relative dynamics model of the planner"),
+    "predict_step_s": (None, _optional(_number(1.0, unit="s")),
+                       "spacing of the predicted trajectory in the diagnostics (default: cycle), s"),
+    "target_tol_m": (0.01, _number(0.0, unit="m"),
+                     "a plan missing the target by more (a-scaled ROE) is reported degraded, m"),
+    "density_model": ("exponential", _choice("exponential", "harris_priester"),
+                      "guidance's density model (guidance.density)"),
+    "f107_forecast_sfu": (150.0, _number(50.0, 400.0, unit="sfu"), "forecast F10.7, sfu"),
+    "density_coefficient": (1.0, _number(1e-3, 1e3), "multiplies guidance's density estimate"),
+}
+
+
+def parse_settings(settings: Mapping[str, Any] | None, spec: Mapping[str, tuple]) -> dict:
+    """Validate a law's settings table against ``spec`` and fill the defaults.
+
+    Raises
+    ------
+    GuidanceInputError
+        ``guidance.settings.<key>`` for an unknown key (listing the allowed ones) or a bad value.
+    """
+    settings = {} if settings is None else settings
+    if not isinstance(settings, Mapping):
+        raise GuidanceInputError("guidance.settings", settings, "a table of settings")
+    out = {}
+    for k in settings:
+        if k not in spec:
+            raise GuidanceInputError(f"guidance.settings.{k}", settings[k],
+                                     "an unknown setting; allowed: " + ", ".join(sorted(spec)))
+    for k, (default, check, _doc) in spec.items():
+        v = settings.get(k, default)
+        out[k] = check(f"guidance.settings.{k}", v) if (k in settings or default is not None) else None
+    return out
+
+
+# ------------------------------------------------------------------------------------------
+# Per-deputy state
+# ------------------------------------------------------------------------------------------
+
+
+@dataclass
+class DeputyState:
+    """What a law remembers about one deputy between calls."""
+
+    caps: SpacecraftCaps
+    target_roe_m: np.ndarray
+    deadline_s: float
+    plan: Plan | None = None
+    plan_t_s: float = -np.inf
+    switches: list = field(default_factory=list)  # [(t_s, mode)] all commanded, time-ordered
+    impulses: list = field(default_factory=list)  # [(t_s, dv (3,))] of the current plan
+    status: str = "ok"
+    message: str = ""
+
+    def mode_at(self, t_s: float) -> str:
+        mode = self.caps.initial_mode
+        for t, m in self.switches:
+            if t < t_s - 1e-9:
+                mode = m
+        return mode
+
+
+# ------------------------------------------------------------------------------------------
+# The law
+# ------------------------------------------------------------------------------------------
+
+
+class PlannerLaw:
+    """Base of the built-in planner laws (see the module docstring)."""
+
+    NAME = "planner"
+    PLAN_DRAG = False
+    EXTRA_SETTINGS: dict[str, tuple[Any, Callable, str]] = {}
+
+    def __init__(self):
+        self.mission: Mission | None = None
+        self.settings: dict = {}
+        self.density: DensityModel | None = None
+        self.deputies: dict[str, DeputyState] = {}
+        self.anchor_t_s: float | None = None
+        self.period_s: float | None = None
+        self._chief_done = False
+
+    @classmethod
+    def settings_spec(cls) -> dict:
+        """All settings of this law: name -> (default, checker, description)."""
+        return {**COMMON_SETTINGS, **cls.EXTRA_SETTINGS}
+
+    # ---- set-up ---------------------------------------------------------------------------
+    def setup(self, mission: Mission) -> None:
+        """Validate the mission and settings; raises GuidanceInputError naming the bad key."""
+        if not isinstance(mission, Mission):
+            raise GuidanceInputError("mission", type(mission).__name__, "a guidance.interface.Mission")
+        s = parse_settings(mission.settings, self.settings_spec())
+        if s["hold_mode"] is None:
+            s["hold_mode"] = s["chief_mode"]
+        if s["predict_step_s"] is None:
+            s["predict_step_s"] = float(mission.cycle_s)
+        self.density = DensityModel.from_settings(
+            {k: s[k] for k in ("density_model", "f107_forecast_sfu", "density_coefficient")})
+        chief = mission.chief
+        if s["chief_mode"] not in chief.drag_area_m2:
+            raise GuidanceInputError("guidance.settings.chief_mode", s["chief_mode"],
+                                     f"one of the chief's modes {sorted(chief.drag_area_m2)}")
+        self.deputies = {}
+        if len(mission.targets) != len(mission.deputies):
+            raise GuidanceInputError("mission.targets", len(mission.targets),
+                                     f"one target per deputy ({len(mission.deputies)})")
+        for dep in mission.deputies:
+            try:
+                tgt = mission.target_for(dep.name)
+            except KeyError:
+                raise GuidanceInputError(f"deputies.{dep.name}.target_roe_m", None,
+                                         "a target for every deputy") from None
+            roe_t = np.asarray(tgt.target_roe_m, dtype=float).reshape(-1)
+            if roe_t.shape != (6,) or not np.all(np.isfinite(roe_t)):
+                raise GuidanceInputError(f"deputies.{dep.name}.target_roe_m", tgt.target_roe_m,
+                                         "six finite numbers, a-scaled metres")
+            if not math.isfinite(float(tgt.deadline_s)):
+                raise GuidanceInputError(f"deputies.{dep.name}.deadline_s", tgt.deadline_s,
+                                         "a finite time, s since epoch")
+            need = {s["hold_mode"]} | ({HIGH_DRAG_MODE, LOW_DRAG_MODE} if self.PLAN_DRAG else set())
+            missing = sorted(need - set(dep.drag_area_m2))
+            if missing:
+                raise GuidanceInputError(f"deputies.{dep.name}.modes", sorted(dep.drag_area_m2),
+                                         f"modes including {missing} (needed by this law)")
+            if not (dep.mass_kg > 0):
+                raise GuidanceInputError(f"deputies.{dep.name}.mass_kg", dep.mass_kg, "> 0 kg")
+            self.deputies[dep.name] = DeputyState(dep, roe_t, float(tgt.deadline_s))
+        self.mission = mission
+        self.settings = s
+        self.anchor_t_s = None
+        self.period_s = None
+        self._chief_done = False
+        self._extra_setup()
+
+    def _extra_setup(self) -> None:
+        """Hook for subclasses (after the common set-up)."""
+
+    # ---- per step -------------------------------------------------------------------------
+    def _wants_plan(self, name: str, st: DeputyState, t_s: float, nav: NavSolution) -> bool:
+        """Whether to (re)plan deputy ``name`` at ``t_s`` (default: only at the first call)."""
+        return st.plan is None
+
+    def _request_hook(self, name: str, st: DeputyState, req: PlanRequest, t_s: float) -> PlanRequest:
+        """Change the request of a re-plan (default: unchanged)."""
+        return req
+
+    def step(self, t_s: float, nav: NavSolution) -> GuidanceOutput:
+        """Plan from ``t_s`` on (see guidance.interface.GuidanceLaw)."""
+        if self.mission is None:
+            raise GuidanceInputError("setup", None, "call setup(mission) before step()")
+        t0 = time.perf_counter()
+        commands: dict[str, SpacecraftCommand] = {}
+        if not self._chief_done:
+            ch = self.mission.chief
+            sw = () if ch.initial_mode == self.settings["chief_mode"] else (
+                ModeSwitch(float(t_s), self.settings["chief_mode"]),)
+            commands[ch.name] = SpacecraftCommand(ch.name, mode_switches=sw)
+        t_s = float(t_s)
+        want = {n: self._wants_plan(n, st, t_s, nav) for n, st in self.deputies.items()}
+        state = None
+        if any(want.values()):
+            try:
+                if not math.isfinite(t_s):
+                    raise GuidanceInputError("t_s", t_s, "a finite time, s since epoch")
+                state = nav_to_mean(nav)
+                missing = [n for n in self.deputies if n not in state.roe]
+                if missing:
+                    raise GuidanceInputError("nav.deputies", sorted(state.roe),
+                                             f"estimates for every deputy (missing {missing})")
+            except GuidanceInputError as exc:
+                # bad navigation: keep every pending plan, report why (never a NaN command)
+                self._chief_done = True
+                return self._output(t_s, commands, {n: False for n in self.deputies}, t0,
+                                    forced=("infeasible", f"bad navigation input: {exc}"))
+            if self.anchor_t_s is None:
+                self.anchor_t_s = t_s
+                self.period_s = chief_period_s(state.chief_oe)
+        planned = {}
+        for name, st in self.deputies.items():
+            if not want[name]:
+                planned[name] = False
+                continue
+            planned[name] = True
+            self._plan_one(name, st, t_s, nav, state)
+        self._chief_done = True
+        for name, st in self.deputies.items():
+            commands[name] = self._command(name, st, t_s)
+        return self._output(t_s, commands, planned, t0)
+
+    # ---- planning one deputy --------------------------------------------------------------
+    def _plan_one(self, name, st: DeputyState, t_s, nav, state):
+        s = self.settings
+        req = self._base_request(name, st, t_s, nav, state)
+        if req is None:
+            return
+        req = self._request_hook(name, st, req, t_s)
+        plan = plan_deputy(req, target_tol_m=s["target_tol_m"])
+        if plan.status == "infeasible":
+            if st.plan is not None and st.plan.status != "infeasible":
+                st.status = "degraded"
+                st.message = f"re-plan infeasible ({plan.message}); previous plan kept"
+                return
+            st.status, st.message = "infeasible", plan.message
+            if True:
+                # nothing to fly: hold the hold mode, no impulse
+                st.switches = [(t, m) for t, m in st.switches if t < t_s] + (
+                    [] if st.mode_at(t_s) == s["hold_mode"] else [(t_s, s["hold_mode"])])
+                st.impulses = []
+                st.plan = plan
+                st.plan_t_s = t_s
+            return
+        current = st.mode_at(t_s)
+        slew = float(st.caps.slew_time_s)
+        if self.PLAN_DRAG and req.fixed_duty is None and req.seg_t0_s.size:
+            sw, realised = realise_duty_schedule(
+                req.seg_t0_s, req.seg_t1_s, plan.duty, t_s, slew_s=slew,
+                min_dwell_s=s["min_dwell_s"], high_mode=HIGH_DRAG_MODE, low_mode=LOW_DRAG_MODE,
+                current_mode=current, end_mode=s["hold_mode"])
+            if np.max(np.abs(realised - plan.duty), initial=0.0) > 1e-9:
+                # the realised schedule differs (dwell, slews): fix the drag, re-plan impulses
+                fixed = replace(req, fixed_duty=realised,
+                                warm_columns=tuple((t, d / np.linalg.norm(d))
+                                                   for t, d in zip(plan.burn_t_s, plan.dv_rtn_mps)
+                                                   if np.linalg.norm(d) > 0))
+                if fixed.soft_weight_mps_per_m is None and fixed.burn_t_s.size:
+                    p2 = plan_deputy(fixed, target_tol_m=s["target_tol_m"])
+                else:
+                    p2 = predict_plan(fixed, np.zeros(0), np.zeros((0, 3)), realised,
+                                      target_tol_m=s["target_tol_m"])
+                if p2.status != "infeasible":
+                    p2.solve_time_s += plan.solve_time_s
+                    plan = p2
+        else:
+            sw = [] if current == s["hold_mode"] else [(t_s, s["hold_mode"])]
+        st.switches = [(t, m) for t, m in st.switches if t < t_s] + [(float(t), m) for t, m in sw]
+        st.impulses = [(float(t), np.array(d, dtype=float)) for t, d in zip(plan.burn_t_s, plan.dv_rtn_mps)
+                       if t >= t_s - 1e-9]
+        st.plan, st.plan_t_s = plan, t_s
+        st.status, st.message = plan.status, plan.message
+
+    def _base_request(self, name, st: DeputyState, t_s, nav, state) -> PlanRequest | None:
+        s = self.settings
+        caps = st.caps
+        chief_oe = np.asarray(state.chief_oe, dtype=float)
+        roe0 = np.asarray(state.roe[name], dtype=float)
+        dt = t_s - float(state.t_s)
+        if abs(dt) > 1e-6:  # navigation time tag differs from the cycle time: free drift
+            roe0 = STM_MODELS[s["stm"]](chief_oe, dt) @ roe0
+            chief_oe = propagate_chief(chief_oe, dt)
+        a = float(chief_oe[0])
+        T = st.deadline_s
+        mass = caps.mass_kg
+        est = nav.deputies.get(name)
+        if est is not None and np.isfinite(est.mass_kg) and est.mass_kg > 0:
+            mass = float(est.mass_kg)
+        thr = caps.thruster
+        dv_max = 0.0 if thr is None else float(thr.dv_max_per_burn_mps)
+        dv_min = 0.0 if thr is None else float(thr.min_impulse_bit_Ns) / mass
+        P = self.period_s
+        tb = burn_grid(self.anchor_t_s, t_s, T, P, s["burns_per_orbit"], s["burn_margin_s"]) \
+            if (thr is not None and T > t_s) else np.zeros(0)
+        s0, s1 = segment_grid(self.anchor_t_s, t_s, T, P, s["segments_per_orbit"])
+        rho = float(self.density.density_kgpm3(max(a - R_EARTH_M, 0.0)))
+        v = float(relative_wind_speed_mps(a, chief_oe[3]))
+        chief = self.mission.chief
+        b_chief = chief.ballistic_coefficient_m2pkg(s["chief_mode"])
+
+        def accel(mode):
+            b = caps.cd * float(caps.drag_area_m2[mode]) / mass
+            return differential_along_track_accel_mps2(rho, v, b, b_chief)
+
+        if self.PLAN_DRAG:
+            w_lo, w_hi = accel(LOW_DRAG_MODE), accel(HIGH_DRAG_MODE)
+        else:
+            w_lo = w_hi = accel(s["hold_mode"])
+        return PlanRequest(
+            chief_oe=chief_oe, t0_s=t_s, deadline_s=T, roe0=roe0, roe_target=st.target_roe_m / a,
+            burn_t_s=tb, dv_max_mps=dv_max, dv_min_mps=dv_min, seg_t0_s=s0, seg_t1_s=s1,
+            w_low_mps2=np.full(s0.size, w_lo), w_high_mps2=np.full(s0.size, w_hi), stm=s["stm"])
+
+    # ---- output -----------------------------------------------------------------------------
+    def _command(self, name, st: DeputyState, t_s) -> SpacecraftCommand:
+        sw = tuple(ModeSwitch(float(t), m) for t, m in st.switches if t >= t_s - 1e-9)
+        imp = tuple(Impulse(float(t), np.array(d, dtype=float)) for t, d in st.impulses
+                    if t >= t_s - 1e-9)
+        return SpacecraftCommand(name, mode_switches=sw, impulses=imp)
+
+    def _output(self, t_s, commands, planned, t0, forced=None) -> GuidanceOutput:
+        s = self.settings
+        statuses, msgs, dv_rem, pred = [], [], {}, {}
+        deadlines = [st.deadline_s for st in self.deputies.values()]
+        t_end = max(deadlines + [t_s])
+        step = s["predict_step_s"]
+        n = int(min(max(math.ceil((t_end - t_s) / step), 1), 2000)) if t_end > t_s else 0
+        times = np.unique(np.concatenate([t_s + step * np.arange(n + 1) if n else [t_s], [t_end],
+                                          [d for d in deadlines if d > t_s]]))
+        times = times[times <= t_end + 1e-9]
+        for name, st in self.deputies.items():
+            statuses.append(st.status if planned.get(name) else "hold")
+            if st.message and planned.get(name):
+                msgs.append(f"{name}: {st.message}")
+            dv_rem[name] = float(sum(np.linalg.norm(d) for t, d in st.impulses if t >= t_s - 1e-9))
+            pred[name] = self._predict(st, times)
+        if forced:
+            status, message = forced
+        else:
+            rank = {"infeasible": 3, "degraded": 2, "ok": 1, "hold": 0}
+            status = max(statuses, key=lambda x: rank[x]) if statuses else "hold"
+            message = "; ".join(msgs)
+        diag = Diagnostics(status=status, message=message, solve_time_s=time.perf_counter() - t0,
+                           dv_remaining_mps=dv_rem, predicted_t_s=times, predicted_roe_m=pred)
+        return GuidanceOutput(commands=commands, diagnostics=diag)
+
+    def _predict(self, st: DeputyState, times) -> np.ndarray:
+        plan = st.plan
+        if plan is None or plan.status == "infeasible":
+            return np.full((times.size, 6), np.nan) if plan is None else self._free(plan, times)
+        r = plan.request
+        a = float(r.chief_oe[0])
+        inside = np.clip(times, r.t0_s, r.deadline_s)
+        x = plan.roe_at(inside)
+        after = times > r.deadline_s
+        if np.any(after):
+            x[after] = STM_MODELS[r.stm](r.chief_oe, times[after] - r.deadline_s) @ plan.roe_final
+        before = times < r.t0_s
+        x[before] = np.nan
+        return a * x
+
+    @staticmethod
+    def _free(plan, times):
+        r = plan.request
+        x = STM_MODELS[r.stm](r.chief_oe, np.maximum(times - r.t0_s, 0.0)).reshape(-1, 6, 6) @ r.roe0
+        return float(r.chief_oe[0]) * x
+
+
+def settings_table(cls) -> str:
+    """Markdown table of a law's settings (name, default, description), for the docs."""
+    rows = ["| setting | default | meaning |", "| --- | --- | --- |"]
+    for k, (d, _c, doc) in cls.settings_spec().items():
+        rows.append(f"| `{k}` | `{d!r}` | {doc} |")
+    return "\n".join(rows)
+
+
+def mean_motion_of(a_m: float) -> float:
+    """Keplerian mean motion of a semi-major axis, rad/s (re-export for laws)."""
+    return float(mean_motion(a_m))
