@@ -1,0 +1,830 @@
+"""The truth world: one Orekit numerical propagator per spacecraft.
+
+What happens in one :meth:`TruthWorld.advance_to` call, per spacecraft:
+
+1. Pending impulses at exactly the current time are applied to the state (same arithmetic as
+   Orekit's ``ImpulseManeuver``); later ones inside the interval become ``ImpulseManeuver``
+   events on ``DateDetector`` s, applied at their exact epoch with mass depletion by the rocket
+   equation.
+2. A fresh ``DragForce(atmosphere, IsotropicDrag(A_ref, Cd))`` is built whose two parameter
+   drivers hold, as time spans inside the interval, the attitude-mode drag area
+   (``"drag coefficient"`` = ``Cd * A_mode * factor / A_ref``) and the truth density scale error
+   (``"global drag factor"`` = ``1 + bias + GM(t)``). Orekit adds a date event at each span
+   transition, so the hot loop stays in Java.
+3. ONE ``propagate()`` to the target time, with the integrator's initial step set, an altitude
+   detector, and a Python step handler that samples the state on the fixed grid
+   ``k * log_step_s`` (called once per integrator step and once per sample, never inside a force
+   evaluation).
+
+Frames: integration in GCRF; every state, sample and delta-v handed out is in covey's ECI, the
+true-of-date frame (TOD, IERS 2010). Initial states are given as Eckstein-Hechler *mean* elements
+in TOD and converted with ``EcksteinHechlerTheory.meanToOsculating`` (gravity degree >= 2; with
+the central term only, mean = osculating).
+
+Slews: a mode switch commanded at ``t`` starts a slew of ``bus.slew_time_s``; the drag area
+changes in one step at the slew's midpoint ``t + slew/2`` (for an area that changes linearly during
+the slew this gives the same along-track impulse as the ramp, with one span transition instead of
+several). ``mode_index`` in the samples is the *commanded* mode (it changes at ``t``);
+``drag_area_m2`` is the area in effect (it changes at ``t + slew/2``).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Callable, Mapping, Sequence
+
+import numpy as np
+
+from sim.config import RunConfig, SpacecraftConfig
+from sim.errors import PropagationError, ScenarioError
+from sim.forces import MAX_STEP_S, ForceEnvironment
+from sim.meanroe import deputy_mean_from_roe
+from sim.orekit_boot import BootInfo, boot
+from sim import spacecraft as scgeo
+
+DENSITY_ERROR_SPAWN_KEY = 0x44454E
+"""Spawn key of the density-error random stream (ASCII ``"DEN"``):
+``np.random.SeedSequence(run.seed, spawn_key=(DENSITY_ERROR_SPAWN_KEY,))``."""
+
+MIN_DENSITY_SPAN_S = 60.0
+"""Shortest span of the piecewise-constant density error (``tau / 10``, at least this), s."""
+
+G0_MPS2 = 9.80665
+"""Standard gravity used by the rocket equation, m/s^2 (Orekit's Constants.G0_STANDARD_GRAVITY)."""
+
+TOD_GRID_S = 3600.0
+"""Grid step of the exact GCRF -> TOD transforms interpolated for the samples, s."""
+
+_EPS_T = 1e-6  # s: times closer than this are the same instant
+
+
+@dataclass(frozen=True)
+class TruthState:
+    """True state of one spacecraft.
+
+    Attributes
+    ----------
+    name : str
+    t_s : float
+        Seconds since the epoch.
+    r_eci_m, v_eci_mps : np.ndarray, shape (3,)
+        Position and velocity in TOD, m and m/s.
+    mass_kg : float
+    mode : str
+        Commanded attitude mode.
+    """
+
+    name: str
+    t_s: float
+    r_eci_m: np.ndarray
+    v_eci_mps: np.ndarray
+    mass_kg: float
+    mode: str
+
+
+@dataclass(frozen=True)
+class AdvanceResult:
+    """Outcome of :meth:`TruthWorld.advance_to`.
+
+    Attributes
+    ----------
+    t_s : float
+        Time reached (the target, or the stop time).
+    stopped : bool
+        True when an event ended the run (``"altitude"``, ``"keep_out"``).
+    reason : str or None
+    """
+
+    t_s: float
+    stopped: bool
+    reason: str | None
+
+
+def _vec(v) -> np.ndarray:
+    return np.array([v.getX(), v.getY(), v.getZ()])
+
+
+def _rtn_basis(r: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """Columns R, T, N (Orekit LOFType.QSW: Q radial, S along-track, W orbit normal)."""
+    rh = r / np.linalg.norm(r)
+    h = np.cross(r, v)
+    nh = h / np.linalg.norm(h)
+    return np.column_stack([rh, np.cross(nh, rh), nh])
+
+
+@dataclass
+class _Switch:
+    t_cmd: float  # commanded (slew start), s
+    t_eff: float  # drag area takes effect (slew midpoint), s
+    mode: str
+    area_m2: float  # effective drag area (nominal * factor)
+    kind: str = "mode_switch"
+    reported: bool = False
+
+
+class _Craft:
+    """Book-keeping of one spacecraft (not public)."""
+
+    def __init__(self, world: "TruthWorld", cfg: SpacecraftConfig, state0):
+        from org.hipparchus.ode.nonstiff import DormandPrince853Integrator
+        from org.orekit.orbits import OrbitType
+        from org.orekit.propagation.numerical import NumericalPropagator
+
+        self.world = world
+        self.cfg = cfg
+        self.name = cfg.name
+        self.bus = cfg.bus
+        self.modes = scgeo.mode_names(cfg.bus)
+        self.mode_index = {m: k for k, m in enumerate(self.modes)}
+        if cfg.initial_mode not in self.mode_index:
+            raise ScenarioError(f"spacecraft.{cfg.name}.initial_mode", cfg.initial_mode,
+                                f"one of the bus's attitude modes {list(self.modes)}")
+        self.areas = scgeo.mode_areas_m2(cfg.bus)
+        self.area_ref = max(self.areas.values())
+        self.srp_area = scgeo.srp_area_m2(cfg.bus, self.areas)
+        if cfg.bus.mass_kg <= 0:
+            raise ScenarioError(f"buses.{cfg.bus.name}.mass_kg", cfg.bus.mass_kg, "a positive mass, kg")
+        self.factors: dict[str, float] = {m: 1.0 for m in self.modes}
+        self.timeline: list[_Switch] = [_Switch(-math.inf, -math.inf, cfg.initial_mode, self.areas[cfg.initial_mode],
+                                                "initial")]
+        self.impulses: list[tuple[float, np.ndarray]] = []
+        self.state = state0
+        self.t_s = 0.0
+        env = world.forces
+        orbit = state0.getOrbit()
+        tol = NumericalPropagator.tolerances(float(env.env.position_tolerance_m), orbit, OrbitType.EQUINOCTIAL)
+        self.integrator = DormandPrince853Integrator(1e-3, MAX_STEP_S, tol[0], tol[1])
+        self.propagator = NumericalPropagator(self.integrator)
+        self.propagator.setOrbitType(OrbitType.EQUINOCTIAL)
+        self.static_forces = env.static_forces(self.srp_area, cfg.bus.cr)
+        # buffers: committed (to drain) and of the running segment
+        self.samples: dict[str, list] = {k: [] for k in ("t", "rv", "m", "rho")}
+        self.seg: dict[str, list] = {k: [] for k in ("t", "rv", "m", "rho")}
+        from jpype import JArray, JDouble
+
+        self._jarray = lambda n: JArray(JDouble)(n)
+        self.tmp6 = self._jarray(6)
+        self.buf = self._jarray(6)
+        self.next_k = 0  # next grid index to sample
+        self.executed: list[dict] = []
+        self.seg_executed: list[dict] = []
+        self.sampler = _make_sampler(world, self)
+        self.propagator.setStepHandler(self.sampler)
+
+    # -- schedule lookups ---------------------------------------------------------------
+    def modes_at(self, t) -> list[str]:
+        """Commanded mode at each time of ``t`` (array_like)."""
+        tl = sorted(self.timeline, key=lambda s: s.t_cmd)
+        keys = np.array([s.t_cmd for s in tl])
+        idx = np.searchsorted(keys, np.asarray(t, dtype=float) + _EPS_T, side="right") - 1
+        return [tl[max(i, 0)].mode for i in np.atleast_1d(idx)]
+
+    def areas_at(self, t) -> np.ndarray:
+        """Drag area in effect at each time of ``t`` (array_like), m^2."""
+        tl = sorted(self.timeline, key=lambda s: s.t_eff)
+        keys = np.array([s.t_eff for s in tl])
+        vals = np.array([s.area_m2 for s in tl])
+        idx = np.searchsorted(keys, np.atleast_1d(np.asarray(t, dtype=float)) + _EPS_T, side="right") - 1
+        return vals[np.maximum(idx, 0)]
+
+    def mode_at(self, t: float) -> str:
+        return self.modes_at([t])[0]
+
+    def area_at(self, t: float) -> float:
+        return float(self.areas_at([t])[0])
+
+
+def _make_sampler(world: "TruthWorld", craft: _Craft):
+    """Python step handler sampling the grid ``k * log_step_s``. Per sample: interpolated state,
+    Cartesian GCRF state copied into a Java array (one call each), mass, model density. The GCRF
+    to TOD rotation is applied afterwards in numpy (:meth:`TruthWorld._gcrf_to_tod`)."""
+    from java.lang import System
+    from jpype import JImplements, JOverride
+    from org.orekit.orbits import OrbitType, PositionAngleType
+    from org.orekit.propagation.sampling import OrekitStepHandler
+
+    epoch = world.forces.epoch
+    gcrf = world.forces.gcrf
+    h = float(world.run.log_step_s)
+    atm = world.forces.atmosphere
+    seg = craft.seg
+    to_array = OrbitType.CARTESIAN.mapOrbitToArray
+    mean_pa = PositionAngleType.MEAN
+    arraycopy = System.arraycopy
+
+    @JImplements(OrekitStepHandler)
+    class _Sampler:
+        @JOverride
+        def init(self, s0, t):
+            pass
+
+        @JOverride
+        def handleStep(self, interpolator):
+            t1 = interpolator.getCurrentState().getDate().durationFrom(epoch)
+            k = craft.next_k
+            tt, mm, rho = seg["t"], seg["m"], seg["rho"]
+            tmp, buf = craft.tmp6, craft.buf
+            n = len(tt)
+            while k * h <= t1 + _EPS_T:
+                date = epoch.shiftedBy(k * h)
+                s = interpolator.getInterpolatedState(date)
+                to_array(s.getOrbit(), mean_pa, tmp, None)
+                arraycopy(tmp, 0, buf, 6 * n, 6)
+                tt.append(k * h)
+                mm.append(s.getMass())
+                rho.append(atm.getDensity(date, s.getPosition(), gcrf) if atm is not None else 0.0)
+                k += 1
+                n += 1
+            craft.next_k = k
+
+        @JOverride
+        def finish(self, s):
+            pass
+
+    return _Sampler()
+
+
+def _make_trigger_handler(world: "TruthWorld", craft: _Craft, dv_rtn: np.ndarray, isp_s: float):
+    """EventHandler of an impulse's DateDetector: records the pre-impulse state and returns STOP,
+    which makes the wrapping ImpulseManeuver apply the impulse (Orekit's contract)."""
+    from jpype import JImplements, JOverride
+    from org.hipparchus.ode.events import Action
+    from org.orekit.propagation.events.handlers import EventHandler
+
+    @JImplements(EventHandler)
+    class _Trigger:
+        @JOverride
+        def init(self, s0, t, detector):
+            pass
+
+        @JOverride
+        def eventOccurred(self, s, detector, increasing):
+            craft.seg_executed.append(world._impulse_record(craft, s, dv_rtn, isp_s))
+            return Action.STOP
+
+        @JOverride
+        def resetState(self, detector, s):
+            return s
+
+        @JOverride
+        def finish(self, s, detector):
+            pass
+
+    return _Trigger()
+
+
+class TruthWorld:
+    """The true dynamics of every spacecraft of a run.
+
+    Parameters
+    ----------
+    run : RunConfig
+    boot_info : BootInfo or None
+        From :func:`sim.orekit_boot.boot`; booted here (with ``run.orekit_data``) when None.
+
+    Attributes
+    ----------
+    names : tuple of str
+        Spacecraft names, chief first.
+    t_s : float
+        Current time, s since the epoch.
+    boot_info : BootInfo
+    forces : sim.forces.ForceEnvironment
+    """
+
+    def __init__(self, run: RunConfig, boot_info: BootInfo | None = None):
+        self.run = run
+        self.boot_info = boot_info if boot_info is not None else boot(run.orekit_data)
+        if run.log_step_s <= 0:
+            raise ScenarioError("log_step_s", run.log_step_s, "a positive sampling step, s")
+        self.forces = ForceEnvironment(run.environment, run.epoch_utc, run.duration_s, self.boot_info.data_path)
+        self.t_s = 0.0
+        self._stopped: str | None = None
+        self._events: list[dict] = []
+        self._tod_cache: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+        self._init_density_error()
+        names = [sc.name for sc in run.spacecraft]
+        if len(set(names)) != len(names):
+            raise ScenarioError("spacecraft names", names, "unique names")
+        self.names = tuple(names)
+        self._crafts: dict[str, _Craft] = {}
+        chief_mean = None
+        for k, sc in enumerate(run.spacecraft):
+            mean = self._mean_elements_of(sc, chief_mean, is_chief=(k == 0))
+            if k == 0:
+                chief_mean = mean
+            self._crafts[sc.name] = _Craft(self, sc, self._initial_state(mean, sc.bus.mass_kg))
+        min_alt = run.events.min_altitude_km * 1e3
+        for c in self._crafts.values():
+            alt = self._altitude_m(c.state)
+            if alt < min_alt:
+                self._stopped = "altitude"
+                self._events.append(dict(t_s=0.0, name=c.name, kind="altitude",
+                                         detail=f"initial altitude {alt / 1e3:.1f} km below "
+                                                f"{run.events.min_altitude_km} km"))
+
+    # ---------------------------------------------------------------------------------
+    # initial states
+    # ---------------------------------------------------------------------------------
+    def _mean_elements_of(self, sc: SpacecraftConfig, chief_mean, is_chief: bool) -> np.ndarray:
+        if sc.orbit is not None and sc.roe_m is not None:
+            raise ScenarioError(f"spacecraft.{sc.name}", "orbit and roe_m", "exactly one of orbit and roe_m")
+        if sc.orbit is not None:
+            o = sc.orbit
+            if not (o.a_m > 0 and 0 <= o.e < 1):
+                raise ScenarioError(f"spacecraft.{sc.name}.orbit", (o.a_m, o.e), "a_m > 0 m and 0 <= e < 1")
+            w = math.radians(o.argp_deg)
+            return np.array([o.a_m, o.e * math.cos(w), o.e * math.sin(w), math.radians(o.i_deg),
+                             math.radians(o.raan_deg), math.radians(o.u_deg)])
+        if is_chief:
+            raise ScenarioError("chief.orbit", None, "mean orbital elements for the chief")
+        if sc.roe_m is None:
+            raise ScenarioError(f"deputies.{sc.name}", None, "either orbit (mean elements) or roe_m (6 values, m)")
+        roe = np.asarray(sc.roe_m, dtype=float)
+        if roe.shape != (6,) or not np.all(np.isfinite(roe)):
+            raise ScenarioError(f"deputies.{sc.name}.roe_m", sc.roe_m, "6 finite a-scaled ROE values, m")
+        return deputy_mean_from_roe(chief_mean, roe)
+
+    def _initial_state(self, mean: np.ndarray, mass_kg: float):
+        from org.orekit.orbits import CartesianOrbit, CircularOrbit, PositionAngleType
+        from org.orekit.propagation import SpacecraftState
+        from org.orekit.propagation.conversion.osc2mean import EcksteinHechlerTheory
+
+        f = self.forces
+        a, ex, ey, i, raan, u = (float(x) for x in mean)
+        mean_orbit = CircularOrbit(a, ex, ey, i, raan, u, PositionAngleType.MEAN, f.tod, f.epoch, f.mu_m3ps2)
+        if f.env.gravity_degree >= 2:
+            osc = EcksteinHechlerTheory(f.eh_provider).meanToOsculating(mean_orbit)
+        else:
+            osc = mean_orbit
+        pv = osc.getPVCoordinates(f.gcrf)
+        return SpacecraftState(CartesianOrbit(pv, f.gcrf, f.epoch, f.mu_m3ps2), float(mass_kg))
+
+    def _altitude_m(self, state) -> float:
+        f = self.forces
+        gp = f.earth.transform(state.getPosition(), f.gcrf, state.getDate())
+        return float(gp.getAltitude())
+
+    # ---------------------------------------------------------------------------------
+    # density error
+    # ---------------------------------------------------------------------------------
+    def _init_density_error(self) -> None:
+        de = self.run.environment.density_error
+        if de.sigma < 0 or de.tau_s <= 0:
+            raise ScenarioError("environment.density_error", (de.sigma, de.tau_s), "sigma >= 0 and tau_s > 0 s")
+        if de.sigma == 0.0:
+            self._rho_t = np.array([0.0])
+            self._rho_f = np.array([max(0.0, 1.0 + de.bias)])
+            return
+        dt = max(de.tau_s / 10.0, MIN_DENSITY_SPAN_S)
+        n = int(math.ceil(max(self.run.duration_s, dt) / dt)) + 2
+        rng = np.random.default_rng(np.random.SeedSequence(self.run.seed, spawn_key=(DENSITY_ERROR_SPAWN_KEY,)))
+        w = rng.standard_normal(n)
+        phi = math.exp(-dt / de.tau_s)
+        q = de.sigma * math.sqrt(1.0 - phi * phi)
+        x = np.empty(n)
+        x[0] = de.sigma * w[0]  # stationary start
+        for k in range(1, n):
+            x[k] = phi * x[k - 1] + q * w[k]
+        self._rho_t = np.arange(n) * dt
+        self._rho_f = np.maximum(0.0, 1.0 + de.bias + x)
+
+    def density_scale(self, t_s) -> float | np.ndarray:
+        """Truth density scale error ``max(0, 1 + bias + GM(t))`` in effect at ``t_s`` (1 when off).
+
+        The Gauss-Markov value is piecewise constant over spans of ``max(tau/10, 60 s)``.
+        """
+        idx = np.searchsorted(self._rho_t, np.asarray(t_s, dtype=float) + _EPS_T, side="right") - 1
+        out = self._rho_f[np.clip(idx, 0, len(self._rho_f) - 1)]
+        return float(out) if np.ndim(out) == 0 else out
+
+    # ---------------------------------------------------------------------------------
+    # public queries
+    # ---------------------------------------------------------------------------------
+    def _craft(self, name: str) -> _Craft:
+        try:
+            return self._crafts[name]
+        except KeyError:
+            raise ScenarioError("spacecraft", name, f"one of {list(self.names)}") from None
+
+    def mode_names(self, name: str) -> tuple[str, ...]:
+        """Attitude-mode names of a spacecraft in index order (``mode_index`` of the samples)."""
+        return self._craft(name).modes
+
+    def mode_area_m2(self, name: str) -> dict[str, float]:
+        """Nominal ram-facing drag area of each mode of a spacecraft, m^2 (no area factors)."""
+        return dict(self._craft(name).areas)
+
+    def states(self) -> dict[str, TruthState]:
+        """Current true states (TOD), by name."""
+        out = {}
+        for name, c in self._crafts.items():
+            pv = c.state.getPVCoordinates(self.forces.tod)
+            out[name] = TruthState(name, self.t_s, _vec(pv.getPosition()), _vec(pv.getVelocity()),
+                                   float(c.state.getMass()), c.mode_at(self.t_s))
+        return out
+
+    # ---------------------------------------------------------------------------------
+    # commands
+    # ---------------------------------------------------------------------------------
+    def set_mode_schedule(self, name: str, switches: Sequence[tuple[float, str]],
+                          area_factor_by_mode: Mapping[str, float] | None = None,
+                          area_factor_fn: Callable[[str, float], float] | None = None) -> None:
+        """Replace the pending attitude-mode switches (those at ``t >= t_s``) of a spacecraft.
+
+        Parameters
+        ----------
+        name : str
+        switches : sequence of (t_s, mode)
+            Each switch starts a slew of ``bus.slew_time_s``; the drag area changes at the slew
+            midpoint.
+        area_factor_by_mode : mapping or None
+            Multiplier of each mode's drag area (realised area error); modes not named keep 1.
+            When given it replaces the spacecraft's factors and also applies to the mode in
+            effect from ``t_s`` on; None keeps the factors set before (initially 1).
+        area_factor_fn : callable or None
+            ``fn(mode, t_switch_s) -> float``, called once per new switch here (never during
+            propagation), multiplying that switch's area (e.g. a sampled attitude error).
+
+        Raises
+        ------
+        ScenarioError
+            Unknown spacecraft or mode, a switch before ``t_s``, a negative or non-finite factor.
+        """
+        c = self._craft(name)
+        new = sorted(((float(t), str(m)) for t, m in switches), key=lambda x: x[0])
+        for t, m in new:
+            if m not in c.mode_index:
+                raise ScenarioError(f"{name}.mode_schedule", m, f"one of the attitude modes {list(c.modes)}")
+            if not math.isfinite(t) or t < self.t_s - _EPS_T:
+                raise ScenarioError(f"{name}.mode_schedule", t, f"switch times >= current time {self.t_s} s")
+        if area_factor_by_mode is not None:
+            for m, fac in area_factor_by_mode.items():
+                if m not in c.mode_index or not (math.isfinite(float(fac)) and float(fac) >= 0):
+                    raise ScenarioError(f"{name}.area_factor_by_mode", {m: fac},
+                                        f"non-negative factors for modes in {list(c.modes)}")
+            c.factors = {m: float(area_factor_by_mode.get(m, 1.0)) for m in c.modes}
+        c.timeline = [sw for sw in c.timeline if sw.t_cmd < self.t_s - _EPS_T or sw.kind == "initial"]
+        if area_factor_by_mode is not None:
+            cur = c.mode_at(self.t_s)
+            area = c.areas[cur] * c.factors[cur]
+            t_eff = max([self.t_s] + [sw.t_eff for sw in c.timeline if math.isfinite(sw.t_eff)])
+            if area != c.area_at(t_eff):
+                c.timeline.append(_Switch(self.t_s, t_eff, cur, area, "area_factor"))
+        slew = float(c.bus.slew_time_s)
+        for t, m in new:
+            fac = c.factors[m]
+            if area_factor_fn is not None:
+                f2 = float(area_factor_fn(m, t))
+                if not (math.isfinite(f2) and f2 >= 0):
+                    raise ScenarioError(f"{name}.area_factor_fn", f2, "a non-negative finite factor")
+                fac *= f2
+            c.timeline.append(_Switch(t, t + 0.5 * slew, m, c.areas[m] * fac))
+
+    def set_impulses(self, name: str, impulses: Sequence[tuple[float, np.ndarray]]) -> None:
+        """Replace the pending impulses (``t >= t_s``) of a spacecraft.
+
+        Parameters
+        ----------
+        name : str
+        impulses : sequence of (t_s, dv_rtn_mps)
+            Delta-v in the spacecraft's own RTN frame (Orekit ``LOFType.QSW``) at that epoch, m/s,
+            shape (3,). Applied at the exact epoch with mass depletion
+            ``m+ = m- exp(-|dv| / (isp g0))`` (``bus.thruster.isp_s``). An impulse at exactly the
+            end of an :meth:`advance_to` interval is applied at the start of the next one (the
+            state and sample at that time are pre-impulse). The truth does not limit propellant.
+
+        Raises
+        ------
+        ScenarioError
+            Unknown spacecraft, no thruster, a time before ``t_s``, a malformed delta-v.
+        """
+        c = self._craft(name)
+        items = []
+        for t, dv in impulses:
+            t = float(t)
+            dv = np.asarray(dv, dtype=float).reshape(-1)
+            if c.bus.thruster is None:
+                raise ScenarioError(f"{name}.impulses", (t, dv.tolist()), "no impulses: the bus has no thruster")
+            if dv.shape != (3,) or not np.all(np.isfinite(dv)):
+                raise ScenarioError(f"{name}.impulses", dv.tolist(), "dv_rtn_mps of 3 finite values, m/s")
+            if not math.isfinite(t) or t < self.t_s - _EPS_T:
+                raise ScenarioError(f"{name}.impulses", t, f"impulse times >= current time {self.t_s} s")
+            items.append((max(t, self.t_s), dv.copy()))
+        c.impulses = [imp for imp in c.impulses if imp[0] < self.t_s - _EPS_T] + sorted(items, key=lambda x: x[0])
+
+    # ---------------------------------------------------------------------------------
+    # propagation
+    # ---------------------------------------------------------------------------------
+    def _tod_transform(self, k: int) -> tuple[np.ndarray, np.ndarray]:
+        """GCRF -> TOD rotation matrix and rotation rate (rad/s, TOD axes) at ``k * TOD_GRID_S``."""
+        hit = self._tod_cache.get(k)
+        if hit is None:
+            f = self.forces
+            tr = f.gcrf.getTransformTo(f.tod, f.epoch.shiftedBy(float(k * TOD_GRID_S)))
+            m = np.array([list(row) for row in tr.getRotation().getMatrix()])
+            hit = (m, _vec(tr.getRotationRate()))
+            if len(self._tod_cache) > 10000:
+                self._tod_cache.clear()
+            self._tod_cache[k] = hit
+        return hit
+
+    def _gcrf_to_tod(self, t: np.ndarray, rv_gcrf: np.ndarray) -> np.ndarray:
+        """GCRF position-velocity (K, 6) at times ``t`` (K,) -> TOD (K, 6).
+
+        Orekit's GCRF -> TOD transform (a pure rotation, with its rate) is evaluated exactly on a
+        grid of :data:`TOD_GRID_S` and interpolated linearly in between (the rotation is
+        precession-nutation, whose fastest terms have periods of days: the interpolation error is
+        below 1e-6 m; a test checks it against Orekit per sample).
+        """
+        g = t / TOD_GRID_S
+        k0 = np.floor(g).astype(int)
+        w = (g - k0)[:, None, None]
+        out = np.empty_like(rv_gcrf)
+        for k in np.unique(k0):
+            sel = k0 == k
+            m0, o0 = self._tod_transform(int(k))
+            m1, o1 = self._tod_transform(int(k) + 1)
+            ws = w[sel]
+            m = (1.0 - ws) * m0 + ws * m1
+            om = (1.0 - ws[:, :, 0]) * o0 + ws[:, :, 0] * o1
+            r = np.einsum("kij,kj->ki", m, rv_gcrf[sel, :3])
+            v = np.einsum("kij,kj->ki", m, rv_gcrf[sel, 3:]) - np.cross(om, r)
+            out[sel, :3], out[sel, 3:] = r, v
+        return out
+
+    def _impulse_record(self, c: _Craft, s, dv_rtn: np.ndarray, isp_s: float) -> dict:
+        f = self.forces
+        date = s.getDate()
+        pv = s.getPVCoordinates(f.gcrf)
+        basis = _rtn_basis(_vec(pv.getPosition()), _vec(pv.getVelocity()))
+        dv_gcrf = basis @ dv_rtn
+        from org.hipparchus.geometry.euclidean.threed import Vector3D
+
+        dv_tod = _vec(f.gcrf.getStaticTransformTo(f.tod, date).transformVector(Vector3D(*map(float, dv_gcrf))))
+        m0 = float(s.getMass())
+        return dict(name=c.name, t_s=float(date.durationFrom(f.epoch)), dv_rtn_mps=np.array(dv_rtn, dtype=float),
+                    dv_eci_mps=dv_tod, mass_before_kg=m0,
+                    mass_after_kg=m0 * math.exp(-float(np.linalg.norm(dv_rtn)) / (isp_s * G0_MPS2)),
+                    _dv_gcrf=dv_gcrf)
+
+    def _apply_impulse_now(self, c: _Craft, dv_rtn: np.ndarray) -> None:
+        """Apply an impulse to the current state (at the start of a segment)."""
+        from org.hipparchus.geometry.euclidean.threed import Vector3D
+        from org.orekit.orbits import CartesianOrbit
+        from org.orekit.propagation import SpacecraftState
+        from org.orekit.utils import PVCoordinates
+
+        f = self.forces
+        rec = self._impulse_record(c, c.state, dv_rtn, c.bus.thruster.isp_s)
+        pv = c.state.getPVCoordinates(f.gcrf)
+        v_new = _vec(pv.getVelocity()) + rec["_dv_gcrf"]
+        orbit = CartesianOrbit(PVCoordinates(pv.getPosition(), Vector3D(*map(float, v_new))), f.gcrf,
+                               c.state.getDate(), f.mu_m3ps2)
+        c.state = SpacecraftState(orbit, rec["mass_after_kg"])
+        c.seg_executed.append(rec)
+
+    def _drag_force(self, c: _Craft, t0: float, t1: float):
+        from org.orekit.forces.drag import DragForce, IsotropicDrag
+
+        f = self.forces
+        if f.atmosphere is None:
+            return None
+        cd = float(c.bus.cd)
+        sens = IsotropicDrag(float(c.area_ref), cd)
+        drivers = {d.getName(): d for d in sens.getDragParametersDrivers()}
+        d_cd, d_rho = drivers["drag coefficient"], drivers["global drag factor"]
+        # attitude-mode drag area: value cd * A / A_ref, spans at effective switch times in (t0, t1)
+        d_cd.setValue(cd * c.area_at(t0) / c.area_ref)
+        for sw in sorted(c.timeline, key=lambda s: s.t_eff):
+            if t0 + _EPS_T < sw.t_eff < t1 - _EPS_T:
+                date = f.epoch.shiftedBy(float(sw.t_eff))
+                d_cd.addSpanAtDate(date)
+                d_cd.setValue(cd * sw.area_m2 / c.area_ref, date)
+        # truth density error
+        d_rho.setValue(float(self.density_scale(t0)))
+        for tk, fk in zip(self._rho_t, self._rho_f):
+            if t0 + _EPS_T < tk < t1 - _EPS_T:
+                date = f.epoch.shiftedBy(float(tk))
+                d_rho.addSpanAtDate(date)
+                d_rho.setValue(float(fk), date)
+        return DragForce(f.atmosphere, sens)
+
+    def _run_segment(self, c: _Craft, t1: float) -> tuple[float, str | None]:
+        """One propagate() of a spacecraft from its current time to t1. Returns (t reached, stop reason)."""
+        from org.orekit.attitudes import LofOffset
+        from org.orekit.forces.maneuvers import ImpulseManeuver
+        from org.orekit.frames import LOFType
+        from org.orekit.propagation.events import AltitudeDetector, DateDetector
+        from org.orekit.propagation.events.handlers import StopOnDecreasing
+        from org.hipparchus.geometry.euclidean.threed import Vector3D
+
+        f = self.forces
+        t0 = c.t_s
+        # impulses at exactly t0 are applied here; those strictly inside become events
+        inside = []
+        for t, dv in c.impulses:
+            if abs(t - t0) <= _EPS_T:
+                self._apply_impulse_now(c, dv)
+            elif t0 < t < t1 - _EPS_T:
+                inside.append((t, dv))
+        p = c.propagator
+        p.removeForceModels()
+        p.setMu(f.mu_m3ps2)
+        for fm in c.static_forces:
+            p.addForceModel(fm)
+        drag = self._drag_force(c, t0, t1)
+        if drag is not None:
+            p.addForceModel(drag)
+        p.clearEventsDetectors()
+        p.addEventDetector(AltitudeDetector(300.0, 1e-3, self.run.events.min_altitude_km * 1e3, f.earth)
+                           .withHandler(StopOnDecreasing()))
+        if inside:
+            qsw = LofOffset(f.gcrf, LOFType.QSW)
+            isp = float(c.bus.thruster.isp_s)
+            for t, dv in inside:
+                trig = DateDetector(f.epoch.shiftedBy(float(t))).withHandler(_make_trigger_handler(self, c, dv, isp))
+                p.addEventDetector(ImpulseManeuver(trig, qsw, Vector3D(*map(float, dv)), isp))
+        p.resetInitialState(c.state)
+        c.integrator.setInitialStepSize(float(min(MAX_STEP_S, max(t1 - t0, 1e-3))))
+        h = float(self.run.log_step_s)
+        n_max = max(0, int(math.floor((t1 + _EPS_T) / h)) - c.next_k + 1)
+        c.buf = c._jarray(6 * n_max + 6)
+        n0 = len(c.seg["t"])
+        try:
+            end = p.propagate(f.epoch.shiftedBy(float(t1)))
+        except Exception as exc:  # Orekit/JPype exceptions
+            t_fail = c.seg["t"][-1] if c.seg["t"] else t0
+            raise PropagationError(float(t_fail), c.name, str(exc)) from exc
+        n = len(c.seg["t"]) - n0
+        if n:
+            rv = np.asarray(c.buf)[: 6 * n].reshape(n, 6)
+            c.seg["rv"].append(self._gcrf_to_tod(np.asarray(c.seg["t"][n0:], dtype=float), rv))
+        c.state = end
+        t_end = float(end.getDate().durationFrom(f.epoch))
+        c.t_s = t_end
+        if t_end < t1 - _EPS_T:
+            return t_end, "altitude"
+        c.t_s = t1
+        return t1, None
+
+    def _begin(self, c: _Craft):
+        for buf in c.seg.values():
+            buf.clear()
+        c.seg_executed.clear()
+        return (c.state, c.t_s, c.next_k, list(c.impulses))
+
+    def _restore(self, c: _Craft, saved) -> None:
+        c.state, c.t_s, c.next_k, c.impulses = saved[0], saved[1], saved[2], list(saved[3])
+        for buf in c.seg.values():
+            buf.clear()
+        c.seg_executed.clear()
+
+    def _keep_out_time(self, t_lo: float) -> tuple[float, str, float] | None:
+        r_min = float(self.run.events.keep_out_radius_m)
+        if r_min <= 0 or len(self._crafts) < 2:
+            return None
+        crafts = list(self._crafts.values())
+        ts = np.asarray(crafts[0].seg["t"])
+        if ts.size == 0:
+            return None
+        n = min(len(cc.seg["t"]) for cc in crafts)
+        ts = ts[:n]
+        rs = [np.concatenate(cc.seg["rv"])[:n, :3] for cc in crafts]
+        first = None
+        for i in range(len(crafts)):
+            for j in range(i + 1, len(crafts)):
+                d = np.linalg.norm(rs[i] - rs[j], axis=1)
+                bad = np.nonzero((d < r_min) & (ts >= t_lo - _EPS_T))[0]
+                if bad.size and (first is None or ts[bad[0]] < first[0]):
+                    first = (float(ts[bad[0]]), f"{crafts[i].name}/{crafts[j].name}", float(d[bad[0]]))
+        return first
+
+    def advance_to(self, t_s: float) -> AdvanceResult:
+        """Propagate every spacecraft to ``t_s`` (one ``propagate()`` each).
+
+        Samples at the multiples of ``run.log_step_s`` in the interval are collected for
+        :meth:`drain_samples`. An altitude below ``run.events.min_altitude_km`` or (with
+        ``keep_out_radius_m > 0``) a sampled separation below the keep-out radius stops the run:
+        every spacecraft is then brought to the stop time (the interval is propagated again from
+        its start, to the stop time) and later calls return at once with ``stopped=True``.
+
+        Raises
+        ------
+        ScenarioError
+            ``t_s`` before the current time.
+        PropagationError
+            Orekit failed.
+        """
+        t1 = float(t_s)
+        if self._stopped is not None:
+            return AdvanceResult(self.t_s, True, self._stopped)
+        if not math.isfinite(t1) or t1 < self.t_s - _EPS_T:
+            raise ScenarioError("advance_to.t_s", t_s, f"a time >= current time {self.t_s} s")
+        if t1 <= self.t_s + _EPS_T:
+            return AdvanceResult(self.t_s, False, None)
+        t0 = self.t_s
+        saved = {n: self._begin(c) for n, c in self._crafts.items()}
+        reached = {}
+        for n, c in self._crafts.items():
+            reached[n] = self._run_segment(c, t1)
+        t_stop, reason, who, detail = t1, None, None, ""
+        for n, (tr, why) in reached.items():
+            if why is not None and tr < t_stop:
+                t_stop, reason, who = tr, why, n
+                alt = self._altitude_m(self._crafts[n].state) / 1e3
+                detail = f"altitude {alt:.2f} km reached the limit {self.run.events.min_altitude_km} km"
+        ko = self._keep_out_time(t0)
+        if ko is not None and ko[0] <= t_stop + _EPS_T and (reason is None or ko[0] < t_stop):
+            t_stop, reason, who = ko[0], "keep_out", ko[1]
+            detail = f"separation {ko[2]:.2f} m below the keep-out radius {self.run.events.keep_out_radius_m} m"
+        if reason is not None:
+            for n, c in self._crafts.items():
+                if c.t_s > t_stop + _EPS_T:
+                    self._restore(c, saved[n])
+                    self._run_segment(c, t_stop)
+                    c.t_s = t_stop
+        self._commit(t0, t_stop)
+        self.t_s = t_stop
+        if reason is not None:
+            self._stopped = reason
+            self._events.append(dict(t_s=t_stop, name=who, kind=reason, detail=detail))
+            return AdvanceResult(t_stop, True, reason)
+        return AdvanceResult(t1, False, None)
+
+    def _commit(self, t0: float, t1: float) -> None:
+        events = []
+        for c in self._crafts.values():
+            for k in c.samples:
+                c.samples[k].extend(c.seg[k])
+                c.seg[k].clear()
+            c.executed.extend(c.seg_executed)
+            for rec in c.seg_executed:
+                events.append(dict(t_s=rec["t_s"], name=c.name, kind="impulse",
+                                   detail=f"dv_rtn_mps {np.round(rec['dv_rtn_mps'], 6).tolist()}, mass "
+                                          f"{rec['mass_before_kg']:.6f} -> {rec['mass_after_kg']:.6f} kg"))
+            c.seg_executed.clear()
+            c.impulses = [imp for imp in c.impulses if imp[0] > t1 + _EPS_T or
+                          (abs(imp[0] - t1) <= _EPS_T and imp[0] > t0 + _EPS_T)]
+            prev = None
+            for sw in sorted(c.timeline, key=lambda s: s.t_cmd):
+                if sw.kind != "initial" and sw.t_cmd <= t1 + _EPS_T and not sw.reported:
+                    events.append(dict(t_s=sw.t_cmd, name=c.name, kind=sw.kind,
+                                       detail=f"{prev} -> {sw.mode}; drag area {sw.area_m2:.6g} m^2 "
+                                              f"from t = {sw.t_eff:.3f} s"))
+                    sw.reported = True
+                prev = sw.mode
+        events.sort(key=lambda e: e["t_s"])
+        self._events.extend(events)
+
+    # ---------------------------------------------------------------------------------
+    # outputs
+    # ---------------------------------------------------------------------------------
+    def drain_samples(self) -> dict[str, dict[str, np.ndarray]]:
+        """Samples since the last drain, per spacecraft.
+
+        Returns
+        -------
+        dict
+            name -> ``t_s`` (K,), ``r_eci_m`` (K, 3) and ``v_eci_mps`` (K, 3) in TOD, ``mass_kg``
+            (K,), ``mode_index`` (K,) int (commanded mode, index in :meth:`mode_names`),
+            ``density_kgpm3`` (K,) truth local density including the density scale error,
+            ``drag_area_m2`` (K,) drag area in effect (mode area times its factor).
+        """
+        out = {}
+        for name, c in self._crafts.items():
+            s = c.samples
+            t = np.asarray(s["t"], dtype=float)
+            mode_idx = np.array([c.mode_index[m] for m in c.modes_at(t)] if t.size else [], dtype=int)
+            area = c.areas_at(t) if t.size else np.zeros(0)
+            rv = np.concatenate(s["rv"]) if s["rv"] else np.zeros((0, 6))
+            out[name] = dict(
+                t_s=t,
+                r_eci_m=rv[:, :3].copy(),
+                v_eci_mps=rv[:, 3:].copy(),
+                mass_kg=np.asarray(s["m"], dtype=float),
+                mode_index=mode_idx,
+                density_kgpm3=np.asarray(s["rho"], dtype=float) * self.density_scale(t) if t.size else t.copy(),
+                drag_area_m2=area,
+            )
+            for k in s:
+                s[k].clear()
+        return out
+
+    def drain_executed_impulses(self) -> list[dict]:
+        """Impulses applied since the last drain: ``name, t_s, dv_rtn_mps (3,), dv_eci_mps (3,)``
+        (TOD), ``mass_before_kg, mass_after_kg``."""
+        out = []
+        for c in self._crafts.values():
+            for rec in c.executed:
+                out.append({k: v for k, v in rec.items() if not k.startswith("_")})
+            c.executed.clear()
+        out.sort(key=lambda r: (r["t_s"], self.names.index(r["name"])))
+        return out
+
+    def drain_events(self) -> list[dict]:
+        """Events since the last drain: ``t_s, name, kind, detail`` with kind ``"altitude"``,
+        ``"keep_out"`` (name ``"a/b"``), ``"mode_switch"``, ``"area_factor"`` or ``"impulse"``."""
+        out, self._events = self._events, []
+        return out
