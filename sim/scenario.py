@@ -524,6 +524,12 @@ _ENV_KEYS = ("preset", "gravity_degree", "gravity_order", "atmosphere", "local_s
 def _environment(t: _Table, base_dir: Path) -> EnvironmentConfig:
     preset = t.string("preset", "full", choices=PRESETS)
     dflt = PRESET_DEFAULTS[preset]
+    if preset == "ideal":  # J2 + drag only: the truth (sim.forces.resolve_environment) enforces it
+        for k in ("gravity_degree", "gravity_order", "sun", "moon", "srp"):
+            if t.has(k) and t.d[k] != dflt[k]:
+                raise t.err(k, t.d[k], f"preset \"ideal\" is J2 + drag only ({k} = "
+                            f"{str(dflt[k]).lower()})", "use preset = \"full\" and set the "
+                            "force-model switches there")
     degree = t.num("gravity_degree", dflt["gravity_degree"], lo=0, hi=120, integer=True, unit="")
     order = t.num("gravity_order", min(dflt["gravity_order"], degree), lo=0, hi=degree,
                   integer=True, unit="")
@@ -1054,6 +1060,20 @@ def describe(cfg: RunConfig, orekit_data: str | None = None) -> list[str]:
         f"(altitude {(o.a_m - R_EARTH_M) / 1000:.1f} km), e {o.e:g}, i {o.i_deg:.4f} deg"
         + (" (sun-synchronous)" if o.sun_synchronous else ""),
     ]
+    try:
+        from .spacecraft import mode_areas_m2
+    except ImportError:  # pragma: no cover
+        mode_areas_m2 = None
+    seen = set()
+    for sc in cfg.spacecraft:
+        if mode_areas_m2 is None or sc.bus.name in seen:
+            continue
+        seen.add(sc.bus.name)
+        areas = mode_areas_m2(sc.bus)
+        txt = ", ".join(f"{m} {a:.4f}" for m, a in areas.items())
+        lines.append(f"bus {sc.bus.name!r}: {sc.bus.mass_kg:g} kg, ram-facing area per mode (m^2): {txt}")
+        if areas.get("max_drag", 0.0) <= areas.get("min_drag", 0.0):
+            lines.append(f"  note: bus {sc.bus.name!r} max_drag area is not larger than min_drag")
     for d in cfg.deputies:
         init = f"roe_m {list(d.roe_m)}" if d.roe_m is not None else "absolute mean elements"
         tgt = f", target {list(d.target_roe_m)}" if d.target_roe_m is not None else ""

@@ -176,12 +176,20 @@ def test_minimal_scenario_defaults():
     assert cfg.guidance.law == "none" and cfg.guidance.cycle_s == 5400.0
 
 
-def test_ideal_preset_and_explicit_key_wins():
-    cfg = parse_scenario(MINIMAL + '\n[environment]\npreset = "ideal"\nsun = true\n', "x.toml")
+def test_presets():
+    cfg = parse_scenario(MINIMAL + '\n[environment]\npreset = "ideal"\nsun = false\n'
+                         'atmosphere = "harris_priester"\n', "x.toml")
     env = cfg.environment
     assert (env.gravity_degree, env.gravity_order) == (2, 0)
-    assert env.sun and not env.moon and not env.srp  # sun given explicitly
-    assert PRESET_DEFAULTS["ideal"]["atmosphere"] == env.atmosphere
+    assert not env.sun and not env.moon and not env.srp
+    assert env.atmosphere == "harris_priester"  # drag as configured
+    # ideal is J2 + drag only: a conflicting switch is refused, not silently overridden
+    e = _err(MINIMAL + '\n[environment]\npreset = "ideal"\nsun = true\n')
+    assert e.key == "environment.sun" and "J2 + drag only" in str(e)
+    # full: explicit keys win over the preset defaults
+    cfg = parse_scenario(MINIMAL + '\n[environment]\ngravity_degree = 8\nmoon = false\n', "x.toml")
+    assert (cfg.environment.gravity_degree, cfg.environment.gravity_order) == (8, 8)
+    assert not cfg.environment.moon and PRESET_DEFAULTS["full"]["moon"]
 
 
 def test_orbit_alternatives_and_epoch_forms():
