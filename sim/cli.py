@@ -17,6 +17,8 @@ from pathlib import Path
 from typing import Any, Sequence
 
 from . import __version__
+from guidance.interface import GuidanceInputError
+
 from .errors import CoveyError, EnvironmentSetupError
 
 DEMO_NAME = "demo_drift.toml"
@@ -35,15 +37,25 @@ class _Progress:
         self.stream = stream or sys.stderr
         self.width = width
         self.t0 = time.perf_counter()
+        self._first: tuple[float, float] | None = None  # (wall, fraction) at the first call
         self.active = False
+
+    def start(self, text: str = "setting up Orekit and the truth world ...") -> None:
+        self.stream.write(f"\r{text}")
+        self.stream.flush()
+        self.active = True
 
     def __call__(self, t_s: float, duration_s: float) -> None:
         frac = min(1.0, t_s / duration_s) if duration_s > 0 else 1.0
+        now = time.perf_counter()
+        if self._first is None:
+            self._first = (now, frac)
+        w0, f0 = self._first
+        left = (now - w0) / (frac - f0) * (1.0 - frac) if frac > f0 else None
         n = int(round(frac * self.width))
-        el = time.perf_counter() - self.t0
-        eta = el / frac * (1 - frac) if frac > 0 else float("nan")
+        eta = f", ~{left:.0f} s left" if left is not None else ""
         self.stream.write(f"\r[{'#' * n}{'.' * (self.width - n)}] {100 * frac:5.1f} %  "
-                          f"t = {t_s / 86400.0:.3f} d  {el:.0f} s elapsed, ~{eta:.0f} s left ")
+                          f"t = {t_s / 86400.0:.3f} d  {now - self.t0:.0f} s elapsed{eta}    ")
         self.stream.flush()
         self.active = True
 
@@ -144,6 +156,8 @@ def _cmd_run(args: argparse.Namespace, scenario: str | Path, demo: bool = False)
     cfg = _load(scenario, args)
     out = Path(args.output) if args.output else DEFAULT_RESULTS / f"{cfg.name}.h5"
     bar = _Progress() if (not args.quiet and sys.stderr.isatty()) else None
+    if bar is not None:
+        bar.start()
     try:
         summary = run_scenario(cfg, out, progress=bar, orekit_data=args.orekit_data)
     finally:
@@ -156,7 +170,7 @@ def _cmd_run(args: argparse.Namespace, scenario: str | Path, demo: bool = False)
               "log.spacecraft.beta.mean_roe_m")
     if summary.status == "failed":
         err = summary.error
-        if isinstance(err, CoveyError):
+        if isinstance(err, (CoveyError, GuidanceInputError)):
             _err(str(err))
         else:
             _err(f"run failed: {summary.reason}; the traceback is in the log "
@@ -192,6 +206,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except CoveyError as exc:
         _err(str(exc))
         return exc.exit_code
+    except GuidanceInputError as exc:  # a law's settings refused: bad input
+        _err(str(exc))
+        return 2
     except KeyboardInterrupt:
         _err("interrupted")
         return 130

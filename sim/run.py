@@ -27,7 +27,7 @@ from typing import Any, Callable
 import h5py
 import numpy as np
 
-from guidance.interface import ROE_NAMES
+from guidance.interface import ROE_NAMES, GuidanceInputError
 
 from . import __version__
 from .config import RunConfig
@@ -84,6 +84,9 @@ class RunSummary:
         Time reached, s since epoch.
     final_mean_roe_m : dict
         Deputy name -> last logged mean ROE (6,), a-scaled m.
+    final_error_m : dict
+        Deputy name -> last logged mean ROE minus ``target_roe_m`` (6,), m, for deputies with a
+        target.
     dv_total_mps : dict
         Spacecraft name -> sum of executed impulse magnitudes, m/s.
     """
@@ -99,13 +102,17 @@ class RunSummary:
     spacecraft: tuple[str, ...]
     final_mean_roe_m: dict[str, np.ndarray] = field(default_factory=dict)
     dv_total_mps: dict[str, float] = field(default_factory=dict)
+    final_error_m: dict[str, np.ndarray] = field(default_factory=dict)
     error: BaseException | None = field(default=None, repr=False)
 
     @property
     def exit_code(self) -> int:
-        """0 for ok or stopped; the error's exit code (CoveyError) or 1 for a failed run."""
+        """0 for ok or stopped; for a failed run the error's exit code (CoveyError), 2 for a
+        GuidanceInputError (bad law name or settings), else 1."""
         if self.status != "failed":
             return 0
+        if isinstance(self.error, GuidanceInputError):
+            return 2
         return getattr(self.error, "exit_code", 1) if isinstance(self.error, CoveyError) else 1
 
     def line(self) -> str:
@@ -117,10 +124,15 @@ class RunSummary:
         dv = sum(self.dv_total_mps.values())
         if dv:
             txt += f", dv {dv * 1000:.1f} mm/s"
-        if self.final_mean_roe_m:
+        if self.final_error_m:
+            worst = max(self.final_error_m.items(),
+                        key=lambda kv: float(np.nan_to_num(np.linalg.norm(kv[1]), nan=-1)))
+            txt += (f", largest final |mean ROE - target| {np.linalg.norm(worst[1]):.1f} m "
+                    f"({worst[0]})")
+        elif self.final_mean_roe_m:
             worst = max(self.final_mean_roe_m.items(),
                         key=lambda kv: float(np.nan_to_num(np.linalg.norm(kv[1]), nan=-1)))
-            txt += f", |mean ROE| of {worst[0]} {np.linalg.norm(worst[1]):.1f} m"
+            txt += f", largest final |mean ROE| {np.linalg.norm(worst[1]):.1f} m ({worst[0]})"
         if self.reason:
             txt += f" ({self.reason})"
         return txt + f" -> {self.path}"
@@ -138,7 +150,7 @@ class Engine:
     api : namespace
         ``mean_elements`` and ``mean_roe_m`` (``sim.meanroe``).
     progress : callable, optional
-        ``progress(t_s, duration_s)`` after every cycle.
+        ``progress(t_s, duration_s)`` once at the start and after every cycle.
     """
 
     def __init__(self, cfg: RunConfig, rec: RunRecorder, world: Any, api: SimpleNamespace,
@@ -183,11 +195,17 @@ class Engine:
         ``self.rec.append("guidance/...", t_s=..., ...)``.
         """
 
+    def finish(self) -> None:
+        """Called once after the loop ended normally (ok or stopped), before the log is closed:
+        summary datasets of later engines go here. Free drift: nothing."""
+
     def run(self) -> tuple[str, str]:
         """Fly to the end (or to a stop event). Returns (status, reason)."""
         T = self.cfg.duration_s
         cycle = self.cfg.guidance.cycle_s
         k = 0
+        if self.progress is not None:
+            self.progress(self.t_s, T)
         while self.t_s < T - 1e-9:
             t_next = min((k + 1) * cycle, T)
             self.plan(self.t_s, t_next)
@@ -307,7 +325,8 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     out_path : str or path-like
         The run log (``.h5``); written as ``out_path.part`` and renamed when closed.
     progress : callable, optional
-        ``progress(t_s, duration_s)``, called after every guidance cycle.
+        ``progress(t_s, duration_s)``, called once when the truth is ready and after every
+        guidance cycle.
     orekit_data : str, optional
         Orekit data folder or zip; wins over ``COVEY_OREKIT_DATA``, the scenario's
         ``[run] orekit_data`` and the bundled data.
@@ -342,6 +361,7 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
         world = api.TruthWorld(cfg, info)
         engine = Engine(cfg, rec, world, api, progress)
         status, reason = engine.run()
+        engine.finish()
     except BaseException as exc:  # noqa: BLE001 - recorded, then re-raised or returned
         error = exc
         status = "failed"
@@ -361,10 +381,13 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
             rec.close(status, reason, tb)
     if isinstance(error, (KeyboardInterrupt, SystemExit)):
         raise error
+    final = dict(engine.final_roe) if engine else {}
+    errors = {d.name: final[d.name] - np.asarray(d.target_roe_m, dtype=float)
+              for d in cfg.deputies if d.target_roe_m is not None and d.name in final}
     return RunSummary(
         path=out, status=status, reason=reason, name=cfg.name,
         t_end_s=engine.t_s if engine is not None else 0.0, duration_s=cfg.duration_s,
         wall_time_s=wall, n_samples=engine.n_samples if engine is not None else 0,
-        spacecraft=names, final_mean_roe_m=dict(engine.final_roe) if engine else {},
+        spacecraft=names, final_mean_roe_m=final, final_error_m=errors,
         dv_total_mps=dict(engine.dv_total) if engine else {}, error=error,
     )

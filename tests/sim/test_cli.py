@@ -110,6 +110,8 @@ def test_bad_orekit_data_and_unwritable_output_exit_2(tmp_path, repo_root, fake_
 def test_progress_bar_text():
     buf = io.StringIO()
     p = _Progress(stream=buf, width=10)
+    p.start()
+    p(0.0, 86400.0)
     p(43200.0, 86400.0)
     p(86400.0, 86400.0)
     p.done()
@@ -188,3 +190,18 @@ def test_every_scenario_file_flies(tmp_path, scenario_paths, capsys):
             assert np.all(np.isfinite(roe))
             if d.roe_m is not None:
                 assert np.all(np.abs(roe[0] - np.array(d.roe_m)) < 1.0), (p, d.name, roe[0])
+
+
+def test_guidance_input_error_during_run_is_bad_input(tmp_path, repo_root, fake_truth, capsys,
+                                                      monkeypatch):
+    from guidance.interface import GuidanceInputError
+
+    def refuse(self, t_s):
+        raise GuidanceInputError("guidance.settings.tolerance_m", -1.0, "a number > 0 (m)")
+
+    monkeypatch.setattr(fake_truth, "advance_to", refuse)
+    code = main(["run", str(repo_root / "scenarios/ideal_pair.toml"), "-o", str(tmp_path / "g.h5")])
+    err = capsys.readouterr().err
+    assert code == 2 and err.strip().splitlines() == [
+        "covey: guidance.settings.tolerance_m = -1.0: a number > 0 (m)"]
+    assert read_log(tmp_path / "g.h5").status == "failed"

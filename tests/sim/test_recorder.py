@@ -119,7 +119,7 @@ def test_run_with_fake_truth_logs_everything(tmp_path, repo_root, fake_truth):
     seen = []
     s = run_scenario(cfg, tmp_path / "r.h5", progress=lambda t, T: seen.append((t, T)))
     assert s.status == "ok" and s.exit_code == 0 and s.t_end_s == 12000.0
-    assert [t for t, _ in seen] == [5400.0, 10800.0, 12000.0]  # one call per guidance cycle
+    assert [t for t, _ in seen] == [0.0, 5400.0, 10800.0, 12000.0]  # start + once per cycle
     log = read_log(tmp_path / "r.h5")
     assert log.spacecraft_names == ["alpha", "beta", "gamma"]
     t = log.spacecraft.alpha.truth.t_s
