@@ -591,7 +591,7 @@ class PlanRequest:
     w_low_mps2, w_high_mps2 : np.ndarray, shape (S,)
         Differential along-track acceleration in the low- and high-drag mode per segment, m/s^2.
     fixed_duty : np.ndarray, shape (S,), optional
-        When given the drag is not planned: the high-drag fraction is fixed to it.
+        High-drag fractions fixed in advance; NaN entries stay free (planned). None: all free.
     fixed_burns_t_s : np.ndarray, shape (F,)
     fixed_burns_dv_rtn_mps : np.ndarray, shape (F, 3)
         Impulses that are already decided (kept as they are, counted in the cost).
@@ -776,13 +776,14 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-6, max_min_bit_rounds=5, target_
     w_hi = np.asarray(req.w_high_mps2, dtype=float)
     g = drag_matrices(chief, s0, s1, T, req.t0_s, req.stm)  # (S,6)
     span = w_hi - w_lo
+    free = np.ones(s0.size, dtype=bool)
+    fixed_vals = np.zeros(s0.size)
     if req.fixed_duty is not None:
-        fixed_duty = np.clip(np.asarray(req.fixed_duty, dtype=float), 0.0, 1.0)
-        w_base = w_lo + fixed_duty * span
-        var = np.zeros(s0.size, dtype=bool)
-    else:
-        w_base = w_lo.copy()
-        var = np.abs(span) > 0
+        fd = np.asarray(req.fixed_duty, dtype=float)
+        free = np.isnan(fd)
+        fixed_vals = np.where(free, 0.0, np.clip(np.nan_to_num(fd), 0.0, 1.0))
+    w_base = w_lo + fixed_vals * span
+    var = (np.abs(span) > 0) & free
     x_known = x_free + g.T @ w_base
     ft = np.asarray(req.fixed_burns_t_s, dtype=float)
     fdv = np.asarray(req.fixed_burns_dv_rtn_mps, dtype=float).reshape(-1, 3)
@@ -822,7 +823,7 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-6, max_min_bit_rounds=5, target_
         msg = sol.message
         if sol.shortfall > 0 and np.isfinite(sol.shortfall):
             msg += f" (short by about {sol.shortfall / float(mean_motion(a)):.3g} m in a-scaled ROE)"
-        if req.fixed_duty is None and s0.size and not np.any(np.abs(span) > 0) and tb.size == 0:
+        if s0.size and not np.any(np.abs(span) > 0) and tb.size == 0:
             msg += "; the drag authority is zero (the deputy's drag modes do not differ)"
         return _infeasible_plan(req, msg, time.perf_counter() - t_start, sol.lower_bound)
     # --- minimum impulse bit: exclude small impulses and re-solve (their dv merges elsewhere)
@@ -843,19 +844,28 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-6, max_min_bit_rounds=5, target_
             status = "degraded"
             message = (f"the whole correction ({sol.cost:.3g} m/s) is below the minimum impulse "
                        f"bit ({dv_min:.3g} m/s): no impulse planned")
-    for _ in range(max_min_bit_rounds):
+    restricted = False
+    for k in range(max_min_bit_rounds):
         mag = np.linalg.norm(sol.dv, axis=1)
         small = np.nonzero((mag > TINY_DV_MPS) & (mag < dv_min))[0]
         if small.size == 0:
             break
+        if k >= 2 and not restricted:
+            # the small correction keeps moving to other candidates: allow only the burns that
+            # are already large (their directions and sizes re-optimised), then shrink that set
+            big = mag >= dv_min
+            if np.any(big):
+                restricted = True
+                small = np.nonzero(~big)[0]
         prog.exclude(small)
-        dropped += small.size
+        dropped += int(np.sum((mag[small] > TINY_DV_MPS)))
         trial = prog.solve(tol_rel=tol_rel)
         if trial.status != "ok":
             # no plan without them: drop them and report the miss
-            sol.dv[small] = 0.0
+            gone = (mag > TINY_DV_MPS) & (mag < dv_min)
+            sol.dv[gone] = 0.0
             status = "degraded"
-            message = (f"{small.size} impulse(s) below the minimum impulse bit "
+            message = (f"{int(gone.sum())} impulse(s) below the minimum impulse bit "
                        f"({dv_min:.3g} m/s) dropped; no plan without them reaches the target")
             break
         sol = trial
@@ -887,7 +897,8 @@ def predict_plan(req: PlanRequest, burn_t_s, dv_rtn_mps, duty=None, *, target_to
         duty = np.zeros(S) if req.fixed_duty is None else req.fixed_duty
     w_lo = np.asarray(req.w_low_mps2, dtype=float)
     span = np.asarray(req.w_high_mps2, dtype=float) - w_lo
-    r2 = PlanRequest(**{**req.__dict__, "fixed_duty": np.clip(np.asarray(duty, float), 0.0, 1.0)})
+    r2 = PlanRequest(**{**req.__dict__,
+                        "fixed_duty": np.clip(np.nan_to_num(np.asarray(duty, float)), 0.0, 1.0)})
     tb = np.asarray(burn_t_s, dtype=float).reshape(-1)
     dv = np.asarray(dv_rtn_mps, dtype=float).reshape(-1, 3)
     return _finish(r2, tb, dv, np.zeros(S, dtype=bool), np.zeros(0), w_lo + r2.fixed_duty * span,
@@ -897,10 +908,15 @@ def predict_plan(req: PlanRequest, burn_t_s, dv_rtn_mps, duty=None, *, target_to
 def _finish(req, tb, dv, var, duty_var, w_base, span, lower_bound, rounds, dropped, t_start,
             status, message, target_tol_m):
     S = np.asarray(req.seg_t0_s).size
-    duty = np.zeros(S) if req.fixed_duty is None else np.clip(np.asarray(req.fixed_duty, float), 0, 1)
-    if req.fixed_duty is None and S:
+    if req.fixed_duty is None:
+        duty = np.zeros(S)
+    else:
+        fd = np.asarray(req.fixed_duty, dtype=float)
+        duty = np.where(np.isnan(fd), 0.0, np.clip(np.nan_to_num(fd), 0.0, 1.0))
+    if S and np.any(var):
         duty[var] = duty_var
-    w = w_base + (duty * span if req.fixed_duty is None else 0.0)
+    # w_base already holds the fixed part; add the planned part
+    w = w_base + np.where(var, duty, 0.0) * span
     used = np.linalg.norm(dv, axis=1) > 0 if dv.size else np.zeros(0, dtype=bool)
     ft = np.asarray(req.fixed_burns_t_s, dtype=float)
     fdv = np.asarray(req.fixed_burns_dv_rtn_mps, dtype=float).reshape(-1, 3)
@@ -943,12 +959,16 @@ def realise_duty_schedule(seg_t0_s, seg_t1_s, duty, t_now_s, *, slew_s=0.0, min_
                           end_mode=None):
     """Turn per-segment high-drag fractions into time-tagged mode switches.
 
-    In segment ``s`` the high-drag mode is held for ``duty[s]`` of its length, centred in the
+    In segment ``s`` the high-drag mode is held for ``duty[s]`` of its length ``L``, centred in the
     segment (so the mean acceleration and its first moment over the segment match the planner's
-    constant-acceleration model). Adjacent high-drag intervals merge; a gap or an interval shorter
-    than ``max(min_dwell_s, slew_s)`` is removed (gap filled, interval dropped). A slew is modelled
-    as an instantaneous change at its midpoint, so a switch is commanded ``slew_s / 2`` before the
-    instant it should take effect (never before ``t_now_s``).
+    constant-acceleration model). With ``dwell = max(min_dwell_s, slew_s)`` each duty is first
+    quantised on its own: a spell shorter than ``dwell`` is dropped (``duty L < dwell`` -> 0) and a
+    low-drag remainder shorter than twice ``dwell`` is filled (``(1 - duty) L < 2 dwell`` -> 1).
+    Then every high-drag spell and every low-drag gap between spells lasts at least ``dwell``
+    (a gap between two centred spells is the sum of two half-remainders), and the realised duty of
+    a segment depends on that segment only. A slew is modelled as an instantaneous change at its
+    midpoint, so a switch is commanded ``slew_s / 2`` before the instant it should take effect, and
+    never before ``t_now_s`` (then it takes effect half a slew after ``t_now_s``).
 
     Parameters
     ----------
@@ -959,7 +979,7 @@ def realise_duty_schedule(seg_t0_s, seg_t1_s, duty, t_now_s, *, slew_s=0.0, min_
         Slew duration and shortest dwell, s.
     high_mode, low_mode : str
     current_mode : str, optional
-        Mode the spacecraft is commanded to now (no switch is emitted into it at ``t_now_s``).
+        Mode the spacecraft is commanded to now (no switch is emitted into it).
     end_mode : str, optional
         Mode to take effect at the end of the last segment (e.g. the formation-keeping mode).
 
@@ -968,7 +988,7 @@ def realise_duty_schedule(seg_t0_s, seg_t1_s, duty, t_now_s, *, slew_s=0.0, min_
     switches : list of (float, str)
         Time-ordered ``(t_s, mode)`` commands, all ``>= t_now_s``, no two equal modes in a row.
     realised_duty : np.ndarray, shape (S,)
-        High-drag fraction per segment that the switches produce (effective times).
+        High-drag fraction per segment that the switches produce (at their effective times).
     """
     s0 = np.asarray(seg_t0_s, dtype=float)
     s1 = np.asarray(seg_t1_s, dtype=float)
@@ -978,19 +998,23 @@ def realise_duty_schedule(seg_t0_s, seg_t1_s, duty, t_now_s, *, slew_s=0.0, min_
         sw = [] if end_mode is None or end_mode == current_mode else [(float(t_now_s), end_mode)]
         return sw, np.zeros(0)
     dwell = max(float(min_dwell_s), float(slew_s), 0.0)
+    L = s1 - s0
+    q = np.where(d * L < max(dwell, 1e-9), 0.0, d)
+    q = np.where((1.0 - q) * L < 2.0 * dwell, np.where(q > 0, 1.0, 0.0), q)
+    q = np.where(q > 1.0 - 1e-12, 1.0, q)
     mid = 0.5 * (s0 + s1)
-    half = 0.5 * d * (s1 - s0)
-    iv = [[m - h, m + h] for m, h, dd in zip(mid, half, d) if dd > 1e-12]
+    half = 0.5 * q * L
     merged = []
-    for a0, a1 in iv:
-        if merged and a0 - merged[-1][1] < max(dwell, 1e-6):
+    for m, h, dd in zip(mid, half, q):
+        if dd <= 0:
+            continue
+        a0, a1 = m - h, m + h
+        if merged and a0 - merged[-1][1] < 1e-6:
             merged[-1][1] = max(merged[-1][1], a1)
         else:
             merged.append([a0, a1])
-    merged = [m for m in merged if m[1] - m[0] >= max(dwell, 1e-9)]
     t_start, t_end = float(s0[0]), float(s1[-1])
-    # effective mode changes
-    events = []  # (effective time, mode)
+    events = []  # effective (time, mode)
     if not merged or merged[0][0] > t_start + 1e-9:
         events.append((t_start, low_mode))
     for a0, a1 in merged:
@@ -999,37 +1023,31 @@ def realise_duty_schedule(seg_t0_s, seg_t1_s, duty, t_now_s, *, slew_s=0.0, min_
             events.append((a1, low_mode))
     if end_mode is not None:
         events.append((t_end, end_mode))
-    # commands: effective time minus half a slew, not before now; merge equal consecutive modes
-    switches = []
+    switches, eff = [], []
     mode = current_mode
-    eff = []  # realised effective (time, mode)
     for te, m in events:
         if m == mode:
             continue
         tc = max(te - 0.5 * slew_s, float(t_now_s))
+        te_real = tc + 0.5 * slew_s if tc > te - 0.5 * slew_s + 1e-9 else te
         if switches and tc <= switches[-1][0] + 1e-9:
-            # two commands at the same instant (start of the schedule): keep the later mode
-            switches[-1] = (switches[-1][0], m)
+            switches[-1] = (switches[-1][0], m)  # two commands at one instant: the later wins
             eff[-1] = (eff[-1][0], m)
         else:
             switches.append((tc, m))
-            eff.append((tc + 0.5 * slew_s if tc > te - 0.5 * slew_s + 1e-9 else te, m))
+            eff.append((te_real, m))
         mode = m
-    # drop no-op switches produced by the merge above
     clean, last = [], current_mode
     for tc, m in switches:
         if m != last:
             clean.append((tc, m))
             last = m
-    # realised high-drag fraction per segment from the effective timeline
     realised = np.zeros(S)
     timeline = [(t_start, current_mode)] + eff
     for k, (te, m) in enumerate(timeline):
         if m != high_mode:
             continue
         te1 = timeline[k + 1][0] if k + 1 < len(timeline) else np.inf
-        lo = np.maximum(s0, te)
-        hi = np.minimum(s1, te1)
-        realised += np.clip(hi - lo, 0.0, None)
-    realised = np.where(s1 > s0, realised / np.maximum(s1 - s0, 1e-300), 0.0)
+        realised += np.clip(np.minimum(s1, te1) - np.maximum(s0, te), 0.0, None)
+    realised = np.where(L > 0, realised / np.maximum(L, 1e-300), 0.0)
     return clean, np.clip(realised, 0.0, 1.0)

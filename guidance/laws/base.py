@@ -292,36 +292,17 @@ class PlannerLaw:
                 st.status = "degraded"
                 st.message = f"re-plan infeasible ({plan.message}); previous plan kept"
                 return
+            # nothing to fly: hold the hold mode, no impulse
             st.status, st.message = "infeasible", plan.message
-            if True:
-                # nothing to fly: hold the hold mode, no impulse
-                st.switches = [(t, m) for t, m in st.switches if t < t_s] + (
-                    [] if st.mode_at(t_s) == s["hold_mode"] else [(t_s, s["hold_mode"])])
-                st.impulses = []
-                st.plan = plan
-                st.plan_t_s = t_s
+            st.switches = [(t, m) for t, m in st.switches if t < t_s] + (
+                [] if st.mode_at(t_s) == s["hold_mode"] else [(t_s, s["hold_mode"])])
+            st.impulses = []
+            st.plan, st.plan_t_s = plan, t_s
             return
         current = st.mode_at(t_s)
         slew = float(st.caps.slew_time_s)
         if self.PLAN_DRAG and req.fixed_duty is None and req.seg_t0_s.size:
-            sw, realised = realise_duty_schedule(
-                req.seg_t0_s, req.seg_t1_s, plan.duty, t_s, slew_s=slew,
-                min_dwell_s=s["min_dwell_s"], high_mode=HIGH_DRAG_MODE, low_mode=LOW_DRAG_MODE,
-                current_mode=current, end_mode=s["hold_mode"])
-            if np.max(np.abs(realised - plan.duty), initial=0.0) > 1e-9:
-                # the realised schedule differs (dwell, slews): fix the drag, re-plan impulses
-                fixed = replace(req, fixed_duty=realised,
-                                warm_columns=tuple((t, d / np.linalg.norm(d))
-                                                   for t, d in zip(plan.burn_t_s, plan.dv_rtn_mps)
-                                                   if np.linalg.norm(d) > 0))
-                if fixed.soft_weight_mps_per_m is None and fixed.burn_t_s.size:
-                    p2 = plan_deputy(fixed, target_tol_m=s["target_tol_m"])
-                else:
-                    p2 = predict_plan(fixed, np.zeros(0), np.zeros((0, 3)), realised,
-                                      target_tol_m=s["target_tol_m"])
-                if p2.status != "infeasible":
-                    p2.solve_time_s += plan.solve_time_s
-                    plan = p2
+            plan, sw = self._realise(req, plan, t_s, current, slew)
         else:
             sw = [] if current == s["hold_mode"] else [(t_s, s["hold_mode"])]
         st.switches = [(t, m) for t, m in st.switches if t < t_s] + [(float(t), m) for t, m in sw]
@@ -329,6 +310,49 @@ class PlannerLaw:
                        if t >= t_s - 1e-9]
         st.plan, st.plan_t_s = plan, t_s
         st.status, st.message = plan.status, plan.message
+
+    def _realise(self, req, plan, t_s, current, slew, rounds=4):
+        """Duty cycles -> mode switches; re-plan until the realised drag is the planned drag.
+
+        Realisation removes spells shorter than the dwell (or slew) time. The segments it changed
+        are fixed to their realised duty and the rest re-planned (free drag absorbs the change at
+        no propulsive cost), a few rounds; whatever still differs is then fixed everywhere and
+        only the impulses are re-planned, so the plan hits the target in the planner's model.
+        """
+        s = self.settings
+        kw = dict(slew_s=slew, min_dwell_s=s["min_dwell_s"], high_mode=HIGH_DRAG_MODE,
+                  low_mode=LOW_DRAG_MODE, current_mode=current, end_mode=s["hold_mode"])
+        fixed = np.full(req.seg_t0_s.size, np.nan)
+        solve_time = plan.solve_time_s
+        for k in range(rounds + 1):
+            sw, realised = realise_duty_schedule(req.seg_t0_s, req.seg_t1_s, plan.duty, t_s, **kw)
+            changed = np.abs(realised - plan.duty) > 1e-9
+            if not np.any(changed):
+                return plan, sw
+            fixed[changed] = realised[changed]
+            last = k == rounds
+            warm = tuple((t, d / np.linalg.norm(d)) for t, d in zip(plan.burn_t_s, plan.dv_rtn_mps)
+                         if np.linalg.norm(d) > 0)
+            r2 = replace(req, fixed_duty=realised if last else fixed.copy(), warm_columns=warm)
+            if last and (r2.soft_weight_mps_per_m is not None or r2.burn_t_s.size == 0):
+                p2 = predict_plan(r2, np.zeros(0), np.zeros((0, 3)), realised,
+                                  target_tol_m=s["target_tol_m"])
+            else:
+                p2 = plan_deputy(r2, target_tol_m=s["target_tol_m"])
+            if p2.status == "infeasible":
+                break
+            solve_time += p2.solve_time_s
+            p2.solve_time_s = solve_time
+            if last:
+                return p2, sw
+            plan = p2
+        sw, realised = realise_duty_schedule(req.seg_t0_s, req.seg_t1_s, plan.duty, t_s, **kw)
+        p3 = predict_plan(replace(req, fixed_duty=realised), plan.burn_t_s, plan.dv_rtn_mps,
+                          realised, target_tol_m=s["target_tol_m"])
+        p3.solve_time_s = solve_time
+        if p3.status == "ok" and plan.status != "ok":
+            p3.status, p3.message = plan.status, plan.message
+        return p3, sw
 
     def _base_request(self, name, st: DeputyState, t_s, nav, state) -> PlanRequest | None:
         s = self.settings

@@ -345,16 +345,23 @@ def test_duty_schedule_realises_the_duty_and_is_time_ordered():
     assert ts == sorted(ts) and ts[0] >= 0.0
     assert all(m1 != m2 for (_, m1), (_, m2) in zip(sw, sw[1:]))
     # with a slew and a dwell: switches half a slew early, short spells removed, still ordered
-    duty2 = np.array([0.0, 0.3, 0.0, 1.0, 0.0, 0.5, 0.0, 0.8])
-    sw2, real2 = pl.realise_duty_schedule(s0, s1, duty2, 0.0, slew_s=120.0, min_dwell_s=400.0,
+    duty2 = np.array([0.0, 0.15, 0.0, 1.0, 0.0, 0.5, 0.0, 0.8])
+    sw2, real2 = pl.realise_duty_schedule(s0, s1, duty2, 0.0, slew_s=120.0, min_dwell_s=200.0,
                                           current_mode="nominal", end_mode="nominal")
     ts2 = [t for t, _ in sw2]
     assert ts2 == sorted(ts2) and ts2[0] >= 0.0
     expect = duty2.copy()
-    expect[1] = 0.0  # the 300 s spell is shorter than the 400 s dwell: dropped
+    expect[1] = 0.0  # the 150 s spell is shorter than the 200 s dwell: dropped
+    expect[7] = 1.0  # the 200 s remainder is shorter than two dwells: filled
     np.testing.assert_allclose(real2, expect, atol=1e-12)
     # the switch into max_drag for segment 3 is commanded half a slew (60 s) early
     assert (3000.0 - 60.0, "max_drag") in sw2
-    # a 200 s low-drag gap between two spells is filled
-    _, real3 = pl.realise_duty_schedule(s0[:2], s1[:2], np.array([0.9, 0.9]), 0.0, min_dwell_s=250.0)
-    np.testing.assert_allclose(real3, [0.95, 0.95], atol=1e-12)
+    # a low-drag remainder shorter than two dwells is filled, and realisation is segment-local
+    _, real3 = pl.realise_duty_schedule(s0[:3], s1[:3], np.array([0.6, 0.9, 0.3]), 0.0,
+                                        min_dwell_s=100.0)
+    np.testing.assert_allclose(real3, [0.6, 1.0, 0.3], atol=1e-12)
+    # every spell and every gap lasts at least the dwell
+    sw4, _ = pl.realise_duty_schedule(s0, s1, np.array([0.2, 0.75, 0.9, 0.15, 0.5, 0.99, 0.05, 0.3]),
+                                      0.0, slew_s=60.0, min_dwell_s=100.0, current_mode="min_drag")
+    gaps = np.diff([t for t, _ in sw4])
+    assert np.all(gaps >= 100.0 - 1e-9)
