@@ -463,7 +463,7 @@ class MinFuelProgram:
         return float(self.delta @ (lam / nrm) - np.sum(D * f) - np.sum(np.maximum(c, 0.0)))
 
     # ---- solve --------------------------------------------------------------------------------
-    def solve(self, tol_rel=1e-6, tol_abs=1e-10, max_rounds=120, n_add=40):
+    def solve(self, tol_rel=1e-5, tol_abs=1e-10, max_rounds=120, n_add=40):
         """Run column-generation rounds to the gap tolerance.
 
         Returns
@@ -555,7 +555,7 @@ class MinFuelProgram:
         return dv, float(np.sum(np.linalg.norm(dv, axis=1)))
 
 
-def solve_min_fuel(G, H, delta, dv_max, *, soft_weight=None, tol_rel=1e-6, warm_columns=()):
+def solve_min_fuel(G, H, delta, dv_max, *, soft_weight=None, tol_rel=1e-5, warm_columns=()):
     """One-shot form of :class:`MinFuelProgram` (see there for the arguments)."""
     prog = MinFuelProgram(G, H, delta, dv_max, soft_weight=soft_weight, warm_columns=warm_columns)
     return prog.solve(tol_rel=tol_rel)
@@ -734,7 +734,7 @@ def _infeasible_plan(req, message, t_solve=0.0, lower_bound=np.inf):
                 0.0, lower_bound, roe_free, miss, t_solve)
 
 
-def plan_deputy(req: PlanRequest, *, tol_rel=1e-6, max_min_bit_rounds=5, target_tol_m=0.01) -> Plan:
+def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_tol_m=0.01) -> Plan:
     """Plan one deputy: build the program, solve it, enforce the minimum impulse bit.
 
     Parameters

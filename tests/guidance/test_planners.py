@@ -144,10 +144,10 @@ def test_cost_agrees_with_an_independent_polyhedral_lp():
     rhs = req.roe_target - pl.STM_MODELS["j2"](CHIEF, T) @ req.roe0
     lp = linprog(np.ones(cols.shape[1]), A_eq=cols, b_eq=rhs, bounds=(0, None), method="highs")
     assert lp.status == 0 and 0.9 < r_in < 1.0
-    assert p.cost_mps <= lp.fun * (1 + 1e-7)
+    assert p.cost_mps <= lp.fun * (1 + 2e-5)  # 1e-5: the planner's relative gap tolerance
     assert p.cost_mps >= lp.fun * r_in * (1 - 1e-7)
     # and the certified gap of our own solve is tiny
-    assert p.cost_mps - p.lower_bound_mps <= 1e-5 * p.cost_mps
+    assert p.cost_mps - p.lower_bound_mps <= 1e-5 * p.cost_mps + 1e-10
 
 
 # ------------------------------------------------------------------------------------------
@@ -179,7 +179,7 @@ def test_random_reconfigurations(d, x0, orbits):
     prop = pl.plan_deputy(request(target, T, x0_m=x0, stm="j2", drag="fixed"))
     hyb = pl.plan_deputy(request(target, T, x0_m=x0, stm="j2", drag="free"))
     assert prop.status == "ok" and hyb.status == "ok"
-    assert hyb.cost_mps <= prop.cost_mps * (1 + 1e-6) + 1e-9
+    assert hyb.cost_mps <= prop.cost_mps * (1 + 2e-5) + 1e-9  # up to the solver's gap tolerance
     assert np.max(np.abs(hyb.miss_m)) < 0.01 and np.max(np.abs(prop.miss_m)) < 0.01
 
 
@@ -239,7 +239,8 @@ def test_resolve_remaining_cost_is_consistent_and_never_increases(drag):
         assert re.status == "ok", re.message
         original_rest = first.cost_after(t)
         prev_rest = prev.cost_after(t)
-        assert re.cost_mps <= prev_rest * (1 + 1e-6) + 1e-9  # never increases cycle to cycle
+        # never increases cycle to cycle (up to twice the solver's 1e-5 relative gap)
+        assert re.cost_mps <= prev_rest * (1 + 2e-5) + 1e-9
         assert abs(re.cost_mps - original_rest) <= 0.01 * original_rest + 1e-9  # within 1 %
         assert np.max(np.abs(re.miss_m)) < 0.01
         prev = re
