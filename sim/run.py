@@ -356,7 +356,8 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     try:
         _write_start_meta(rec, cfg, data_path, label)
         api = _truth_api()
-        info = api.boot(data_path)
+        # boot() reads COVEY_OREKIT_DATA itself (and then records that as the data source)
+        info = api.boot(None if label == "COVEY_OREKIT_DATA" else data_path)
         _write_boot_meta(rec, info)
         world = api.TruthWorld(cfg, info)
         engine = Engine(cfg, rec, world, api, progress)

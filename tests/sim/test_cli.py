@@ -57,6 +57,9 @@ def test_demo_default_output_in_results(tmp_path, monkeypatch, fake_truth, capsy
     log_path = tmp_path / "results" / "demo_drift.h5"
     assert log_path.exists() and f"run log: {log_path}" in out
     assert read_log(log_path).spacecraft_names == ["alpha", "beta", "gamma"]
+    (tmp_path / "logs").mkdir()
+    assert main(["demo", "-o", "logs", "--set", "run.duration_s=600"]) == 0  # a folder
+    assert (tmp_path / "logs" / "demo_drift.h5").exists()
 
 
 def test_failed_run_exit_1_one_line(tmp_path, repo_root, fake_truth, capsys):
