@@ -605,11 +605,12 @@ class TruthWorld:
                 d_cd.setValue(cd * sw.area_m2 / c.area_ref, date)
         # truth density error
         d_rho.setValue(float(self.density_scale(t0)))
-        for tk, fk in zip(self._rho_t, self._rho_f):
-            if t0 + _EPS_T < tk < t1 - _EPS_T:
-                date = f.epoch.shiftedBy(float(tk))
-                d_rho.addSpanAtDate(date)
-                d_rho.setValue(float(fk), date)
+        lo = int(np.searchsorted(self._rho_t, t0 + _EPS_T, side="right"))
+        hi = int(np.searchsorted(self._rho_t, t1 - _EPS_T, side="left"))
+        for tk, fk in zip(self._rho_t[lo:hi], self._rho_f[lo:hi]):
+            date = f.epoch.shiftedBy(float(tk))
+            d_rho.addSpanAtDate(date)
+            d_rho.setValue(float(fk), date)
         return DragForce(f.atmosphere, sens)
 
     def _run_segment(self, c: _Craft, t1: float) -> tuple[float, str | None]:
@@ -691,6 +692,8 @@ class TruthWorld:
         if ts.size == 0:
             return None
         n = min(len(cc.seg["t"]) for cc in crafts)
+        if n == 0:
+            return None
         ts = ts[:n]
         rs = [np.concatenate(cc.seg["rv"])[:n, :3] for cc in crafts]
         first = None

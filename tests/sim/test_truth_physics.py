@@ -552,26 +552,42 @@ def test_density_error_stream_is_seeded_and_gauss_markov():
 
 
 @pytest.mark.slow
-def test_density_bias_scales_the_drag_decay():
+def test_density_error_scales_the_drag_decay():
     # Source: the textbook decay rate is proportional to the density (Vallado, drag section
-    # [memory]): a +50 % truth density bias gives 1.5 x the decay of the unbiased world (within 3 %),
-    # and the logged density carries the factor.
+    # [memory]): a +50 % truth density bias gives 1.5 x the decay of the unbiased world (within 3 %);
+    # with a Gauss-Markov error the decay over the day scales by sum(f_k rho_k) / sum(rho_k) (the
+    # density-weighted mean factor, within 3 %); logged densities carry the factor.
     from sim.truth import TruthWorld
 
-    kw = dict(alt_km=420.0, duration_s=86400.0, log_step_s=600.0, chief_mode="max_drag")
+    kw = dict(alt_km=420.0, duration_s=86400.0, log_step_s=600.0, chief_mode="max_drag", seed=11)
     env = env_only(gravity_degree=2, atmosphere="nrlmsise00")
-    worlds = [TruthWorld(make_run(env=dataclasses.replace(env, density_error=DensityErrorConfig(bias=b)), **kw))
-              for b in (0.0, 0.5)]
+    errs = (DensityErrorConfig(), DensityErrorConfig(bias=0.5), DensityErrorConfig(sigma=0.3, tau_s=20000.0))
+    worlds = [TruthWorld(make_run(env=dataclasses.replace(env, density_error=e), **kw)) for e in errs]
     twin = TruthWorld(make_run(env=env_only(gravity_degree=2), **kw))
-    rates, rho = [], []
     for w in worlds + [twin]:
         w.advance_to(86400.0)
     st = twin.drain_samples()
     mt = mean_of(twin, st, "chief")
+    rates, drops, rho = [], [], []
     for w in worlds:
         s = w.drain_samples()
-        rates.append(fit_slope(s["chief"]["t_s"], mean_of(w, s, "chief")[:, 0] - mt[:, 0]))
-        rho.append(s["chief"]["density_kgpm3"][0])
-    print(f"decay ratio with +50 % density bias {rates[1] / rates[0]:.4f}")
+        da = mean_of(w, s, "chief")[:, 0] - mt[:, 0]
+        rates.append(fit_slope(s["chief"]["t_s"], da))
+        drops.append(np.mean(da[-3:]) - np.mean(da[:3]))
+        rho.append(s["chief"]["density_kgpm3"])
+        t = s["chief"]["t_s"]
+        # logged density = the model's density at the logged position times the error factor
+        from org.hipparchus.geometry.euclidean.threed import Vector3D
+
+        fe = w.forces
+        for k in (0, 50, 143):
+            model = fe.atmosphere.getDensity(fe.epoch.shiftedBy(float(t[k])), Vector3D(*map(float, s["chief"]["r_eci_m"][k])),
+                                             fe.tod)
+            assert s["chief"]["density_kgpm3"][k] == pytest.approx(model * w.density_scale(t[k]), rel=1e-9)
+    f_gm = worlds[2].density_scale(t)
+    assert np.std(f_gm) > 0.05  # the error really varies over the day
+    print(f"decay ratio with +50 % density bias {rates[1] / rates[0]:.4f}; Gauss-Markov world "
+          f"{drops[2] / drops[0]:.4f} vs weighted factor {np.sum(f_gm * rho[0]) / np.sum(rho[0]):.4f}")
     assert rates[1] / rates[0] == pytest.approx(1.5, rel=0.03)
-    assert rho[1] / rho[0] == pytest.approx(1.5, rel=1e-12)
+    assert drops[2] / drops[0] == pytest.approx(np.sum(f_gm * rho[0]) / np.sum(rho[0]), rel=0.03)
+    assert rho[1][0] / rho[0][0] == pytest.approx(1.5, rel=1e-12)
