@@ -45,7 +45,6 @@ see DEVELOPERS.md)."""
 EH_DEGREE = 6
 """Degree/order of the gravity field given to the Eckstein-Hechler mean theory (J2..J6)."""
 
-_STANDARD_GRAVITY = 9.80665  # m/s^2, standard acceleration of gravity (CGPM 1901; Orekit's G0_STANDARD_GRAVITY)
 
 # ------------------------------------------------------------------------------------------
 # Presets

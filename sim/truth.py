@@ -195,83 +195,104 @@ class _Craft:
         return float(self.areas_at([t])[0])
 
 
+_SAMPLER_CLASS = None
+
+
 def _make_sampler(world: "TruthWorld", craft: _Craft):
     """Python step handler sampling the grid ``k * log_step_s``. Per sample: interpolated state,
     Cartesian GCRF state copied into a Java array (one call each), mass, model density. The GCRF
-    to TOD rotation is applied afterwards in numpy (:meth:`TruthWorld._gcrf_to_tod`)."""
-    from java.lang import System
-    from jpype import JImplements, JOverride
-    from org.orekit.orbits import OrbitType, PositionAngleType
-    from org.orekit.propagation.sampling import OrekitStepHandler
+    to TOD rotation is applied afterwards in numpy (:meth:`TruthWorld._gcrf_to_tod`). Called once
+    per integrator step, never inside a force evaluation. The proxy class is created once."""
+    global _SAMPLER_CLASS
+    if _SAMPLER_CLASS is None:
+        from java.lang import System
+        from jpype import JImplements, JOverride
+        from org.orekit.orbits import OrbitType, PositionAngleType
+        from org.orekit.propagation.sampling import OrekitStepHandler
 
-    epoch = world.forces.epoch
-    gcrf = world.forces.gcrf
-    h = float(world.run.log_step_s)
-    atm = world.forces.atmosphere
-    seg = craft.seg
-    to_array = OrbitType.CARTESIAN.mapOrbitToArray
-    mean_pa = PositionAngleType.MEAN
-    arraycopy = System.arraycopy
+        to_array = OrbitType.CARTESIAN.mapOrbitToArray
+        mean_pa = PositionAngleType.MEAN
+        arraycopy = System.arraycopy
 
-    @JImplements(OrekitStepHandler)
-    class _Sampler:
-        @JOverride
-        def init(self, s0, t):
-            pass
+        @JImplements(OrekitStepHandler)
+        class _Sampler:
+            def __init__(self, world, craft):
+                self.craft = craft
+                self.epoch = world.forces.epoch
+                self.gcrf = world.forces.gcrf
+                self.h = float(world.run.log_step_s)
+                self.atm = world.forces.atmosphere
 
-        @JOverride
-        def handleStep(self, interpolator):
-            t1 = interpolator.getCurrentState().getDate().durationFrom(epoch)
-            k = craft.next_k
-            tt, mm, rho = seg["t"], seg["m"], seg["rho"]
-            tmp, buf = craft.tmp6, craft.buf
-            n = len(tt)
-            while k * h <= t1 + _EPS_T:
-                date = epoch.shiftedBy(k * h)
-                s = interpolator.getInterpolatedState(date)
-                to_array(s.getOrbit(), mean_pa, tmp, None)
-                arraycopy(tmp, 0, buf, 6 * n, 6)
-                tt.append(k * h)
-                mm.append(s.getMass())
-                rho.append(atm.getDensity(date, s.getPosition(), gcrf) if atm is not None else 0.0)
-                k += 1
-                n += 1
-            craft.next_k = k
+            @JOverride
+            def init(self, s0, t):
+                pass
 
-        @JOverride
-        def finish(self, s):
-            pass
+            @JOverride
+            def handleStep(self, interpolator):
+                craft, epoch, h, atm, gcrf = self.craft, self.epoch, self.h, self.atm, self.gcrf
+                t1 = interpolator.getCurrentState().getDate().durationFrom(epoch)
+                k = craft.next_k
+                seg = craft.seg
+                tt, mm, rho = seg["t"], seg["m"], seg["rho"]
+                tmp, buf = craft.tmp6, craft.buf
+                n = len(tt)
+                while k * h <= t1 + _EPS_T:
+                    date = epoch.shiftedBy(k * h)
+                    s = interpolator.getInterpolatedState(date)
+                    to_array(s.getOrbit(), mean_pa, tmp, None)
+                    arraycopy(tmp, 0, buf, 6 * n, 6)
+                    tt.append(k * h)
+                    mm.append(s.getMass())
+                    rho.append(atm.getDensity(date, s.getPosition(), gcrf) if atm is not None else 0.0)
+                    k += 1
+                    n += 1
+                craft.next_k = k
 
-    return _Sampler()
+            @JOverride
+            def finish(self, s):
+                pass
+
+        _SAMPLER_CLASS = _Sampler
+    return _SAMPLER_CLASS(world, craft)
+
+
+_TRIGGER_CLASS = None
 
 
 def _make_trigger_handler(world: "TruthWorld", craft: _Craft, dv_rtn: np.ndarray, isp_s: float):
     """EventHandler of an impulse's DateDetector: records the pre-impulse state and returns STOP,
-    which makes the wrapping ImpulseManeuver apply the impulse (Orekit's contract)."""
-    from jpype import JImplements, JOverride
-    from org.hipparchus.ode.events import Action
-    from org.orekit.propagation.events.handlers import EventHandler
+    which makes the wrapping ImpulseManeuver apply the impulse (Orekit's contract). Called once
+    per impulse, never inside a force evaluation. The proxy class is created once per process."""
+    global _TRIGGER_CLASS
+    if _TRIGGER_CLASS is None:
+        from jpype import JImplements, JOverride
+        from org.hipparchus.ode.events import Action
+        from org.orekit.propagation.events.handlers import EventHandler
 
-    @JImplements(EventHandler)
-    class _Trigger:
-        @JOverride
-        def init(self, s0, t, detector):
-            pass
+        @JImplements(EventHandler)
+        class _Trigger:
+            def __init__(self, world, craft, dv_rtn, isp_s):
+                self.world, self.craft, self.dv_rtn, self.isp_s = world, craft, dv_rtn, isp_s
 
-        @JOverride
-        def eventOccurred(self, s, detector, increasing):
-            craft.seg_executed.append(world._impulse_record(craft, s, dv_rtn, isp_s))
-            return Action.STOP
+            @JOverride
+            def init(self, s0, t, detector):
+                pass
 
-        @JOverride
-        def resetState(self, detector, s):
-            return s
+            @JOverride
+            def eventOccurred(self, s, detector, increasing):
+                self.craft.seg_executed.append(self.world._impulse_record(self.craft, s, self.dv_rtn, self.isp_s))
+                return Action.STOP
 
-        @JOverride
-        def finish(self, s, detector):
-            pass
+            @JOverride
+            def resetState(self, detector, s):
+                return s
 
-    return _Trigger()
+            @JOverride
+            def finish(self, s, detector):
+                pass
+
+        _TRIGGER_CLASS = _Trigger
+    return _TRIGGER_CLASS(world, craft, dv_rtn, isp_s)
 
 
 class TruthWorld:
