@@ -21,12 +21,13 @@ from guidance.interface import GuidanceInputError
 
 from .errors import CoveyError, EnvironmentSetupError
 
-DEMO_NAME = "demo_drift.toml"
+DEMO_NAME = "demo_formation.toml"
+DEMO_LAWS = ("propulsion_only", "hybrid_single", "hybrid_resolve")
 DEFAULT_RESULTS = Path("results")
 
 
 def demo_scenario_path() -> Path:
-    """The packaged demo scenario (``sim/demo/demo_drift.toml``)."""
+    """The packaged demo scenario (``sim/demo/demo_formation.toml``)."""
     return Path(str(resources.files("sim").joinpath("demo", DEMO_NAME)))
 
 
@@ -121,11 +122,16 @@ def _build_parser() -> argparse.ArgumentParser:
                    help="Orekit data folder or zip for the solar-activity span check")
     v.add_argument("--set", action="append", metavar="KEY=VALUE", help="override a scenario key")
 
-    d = sub.add_parser("demo", help="fly the built-in demo scenario",
-                       description="Fly the built-in demo: a chief and two deputies near 500 km "
-                                   "sun-synchronous, 3 days, drifting free (no guidance law "
-                                   "yet). Prints where the log is.")
+    d = sub.add_parser("demo", help="fly the built-in demo with each built-in guidance law",
+                       description="Fly the built-in demo (a chief and two deputies near 500 km "
+                                   "sun-synchronous, 3 days, realistic navigation and actuator "
+                                   "errors and a truth density error) once with each built-in "
+                                   "law, and print one comparison table. Logs: "
+                                   "results/demo_formation_<law>.h5.")
     common_run(d)
+    d.add_argument("--law", action="append", metavar="LAW", choices=DEMO_LAWS,
+                   help="fly only this law (repeatable; default: all of "
+                        + ", ".join(DEMO_LAWS) + ")")
     return p
 
 
@@ -143,17 +149,23 @@ def _load(path: str | Path, args: argparse.Namespace):
 def _cmd_validate(args: argparse.Namespace) -> int:
     from .scenario import describe
 
+    from .mission import check_guidance
+
     cfg = _load(args.scenario, args)
+    law = check_guidance(cfg)
     print(f"ok: {args.scenario} is a valid scenario")
+    if law:
+        print(f"  guidance law {cfg.guidance.law!r} ({law}) accepts its settings and the mission")
     for line in describe(cfg, args.orekit_data):
         print(f"  {line}")
     return 0
 
 
-def _cmd_run(args: argparse.Namespace, scenario: str | Path, demo: bool = False) -> int:
+def _cmd_run(args: argparse.Namespace, scenario: str | Path, demo: bool = False,
+             cfg=None, summaries: list | None = None) -> int:
     from .run import run_scenario
 
-    cfg = _load(scenario, args)
+    cfg = _load(scenario, args) if cfg is None else cfg
     out = Path(args.output) if args.output else DEFAULT_RESULTS / f"{cfg.name}.h5"
     if args.output and (out.is_dir() or args.output.endswith(("/", os.sep))):
         out = out / f"{cfg.name}.h5"  # a folder: the default file name inside it
@@ -166,10 +178,12 @@ def _cmd_run(args: argparse.Namespace, scenario: str | Path, demo: bool = False)
         if bar is not None:
             bar.done()
     print(summary.line())
-    if demo and summary.status != "failed":
-        print(f"run log: {summary.path.resolve()}\n  read it in Python: from sim.recorder import "
-              f"read_log; log = read_log({str(summary.path)!r}); "
-              "log.spacecraft.beta.mean_roe_m")
+    if summaries is not None:
+        summaries.append(summary)
+    if summary.metrics and not demo:
+        from .metrics import METRIC_COLUMNS, format_table, table_rows
+
+        print(format_table(table_rows(summary.metrics), METRIC_COLUMNS))
     if summary.status == "failed":
         err = summary.error
         if isinstance(err, (CoveyError, GuidanceInputError)):
@@ -180,6 +194,40 @@ def _cmd_run(args: argparse.Namespace, scenario: str | Path, demo: bool = False)
             if os.environ.get("COVEY_DEBUG") and err is not None:
                 traceback.print_exception(type(err), err, err.__traceback__)
     return summary.exit_code
+
+
+def _cmd_demo(args: argparse.Namespace, path: Path) -> int:
+    """Fly the demo once per law and print one comparison table."""
+    import dataclasses
+
+    from .metrics import format_table, table_rows
+
+    base = _load(path, args)
+    laws = tuple(dict.fromkeys(args.law or DEMO_LAWS))
+    summaries: list = []
+    worst = 0
+    for law in laws:
+        cfg = dataclasses.replace(base, name=f"{base.name}_{law}",
+                                  guidance=dataclasses.replace(base.guidance, law=law))
+        worst = max(worst, _cmd_run(args, path, demo=True, cfg=cfg, summaries=summaries))
+    rows = []
+    for law, sm in zip(laws, summaries):
+        rows += table_rows(sm.metrics, {"law": law, "status": sm.status,
+                                        "wall_s": sm.wall_time_s})
+    if rows:
+        cols = (("law", "law", ""), ("name", "deputy", ""), ("status", "status", ""),
+                ("dv_total_mps", "dv [m/s]", ".4f"), ("n_burns", "burns", "d"),
+                ("n_switches", "switches", "d"), ("err_dlambda_m", "a dlambda err [m]", ".1f"),
+                ("err_de_m", "a de err [m]", ".1f"), ("err_di_m", "a di err [m]", ".1f"),
+                ("final_error_norm_m", "|err| [m]", ".1f"), ("wall_s", "wall [s]", ".0f"))
+        print()
+        print("errors are truth mean ROE (Orekit Eckstein-Hechler) minus target at the deadline, "
+              "a-scaled metres")
+        print(format_table(rows, cols))
+        print(f"\nrun logs: {', '.join(str(sm.path) for sm in summaries)}")
+        print("  read one in Python: from sim.recorder import read_log; "
+              f"log = read_log({str(summaries[-1].path)!r}); log.spacecraft.beta.mean_roe_m")
+    return worst
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -202,7 +250,7 @@ def main(argv: Sequence[str] | None = None) -> int:
             if not path.is_file():
                 raise EnvironmentSetupError(f"the demo scenario {str(path)!r} is missing",
                                             'reinstall covey (pip install -e ".[test]")')
-            return _cmd_run(args, path, demo=True)
+            return _cmd_demo(args, path)
         parser.print_help()
         return 2
     except CoveyError as exc:

@@ -240,6 +240,17 @@ class EventsConfig:
 
 
 @dataclass(frozen=True)
+class MetricsConfig:
+    """How a run is judged (sim.metrics).
+
+    ``tolerance_m``: half-widths of the tolerance box on the mean-ROE error (truth minus target),
+    a-scaled metres, order da, dlambda, dex, dey, dix, diy.
+    """
+
+    tolerance_m: tuple[float, float, float, float, float, float] = (10.0,) * 6
+
+
+@dataclass(frozen=True)
 class RunConfig:
     """The whole validated scenario.
 
@@ -272,6 +283,7 @@ class RunConfig:
     guidance: GuidanceConfig = field(default_factory=GuidanceConfig)
     navigation: NavigationConfig = field(default_factory=NavigationConfig)
     actuators: ActuatorConfig = field(default_factory=ActuatorConfig)
+    metrics: MetricsConfig = field(default_factory=MetricsConfig)
     orekit_data: str | None = None
     source_text: str = ""
     source_path: str = ""

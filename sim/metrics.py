@@ -146,3 +146,108 @@ def format_table(rows: Sequence[Mapping], columns: Sequence[tuple[str, str, str]
     for c in body:
         lines.append("  ".join(x.rjust(w) for x, w in zip(c, widths)))
     return "\n".join(lines)
+
+
+def run_metrics(f, cfg) -> list[DeputyMetrics]:
+    """Metrics of every deputy with a target, from an open run log and the run's configuration.
+
+    Parameters
+    ----------
+    f : h5py.File or h5py.Group
+        The run log (open for reading or still being written).
+    cfg : sim.config.RunConfig
+
+    Returns
+    -------
+    list of DeputyMetrics
+        Deputies without ``target_roe_m`` are skipped.
+    """
+    chief = cfg.chief.name
+
+    def arr(path, default=None):
+        return np.asarray(f[path][...]) if path in f else default
+
+    tc = arr(f"spacecraft/{chief}/truth/t_s", np.zeros(0))
+    rc = arr(f"spacecraft/{chief}/truth/r_eci_m", np.zeros((0, 3)))
+    vc = arr(f"spacecraft/{chief}/truth/v_eci_mps", np.zeros((0, 3)))
+    imp_name = arr("commands/impulses/name")
+    imp_status = arr("commands/impulses/status")
+    imp_dv = arr("commands/impulses/dv_exec_rtn_mps")
+    imp_prop = arr("commands/impulses/propellant_used_kg")
+    sw_name = arr("commands/switches/name")
+    out = []
+    for d in cfg.deputies:
+        if d.target_roe_m is None:
+            continue
+        base = f"spacecraft/{d.name}"
+        t = arr(f"{base}/truth/t_s", np.zeros(0))
+        roe = arr(f"{base}/mean_roe_m", np.zeros((0, 6)))
+        rd = arr(f"{base}/truth/r_eci_m", np.zeros((0, 3)))
+        mi = arr(f"{base}/truth/mode_index", np.zeros(0, int))
+        modes = list(f[base].attrs.get("mode_names", [])) if base in f else []
+        modes = [m.decode() if isinstance(m, bytes) else str(m) for m in modes]
+        n = min(len(t), len(tc), len(roe))
+        dv = np.zeros((0, 3))
+        prop = 0.0
+        if imp_name is not None and len(imp_name):
+            names = np.array([x.decode() if isinstance(x, bytes) else str(x) for x in imp_name])
+            st = np.array([x.decode() if isinstance(x, bytes) else str(x) for x in imp_status])
+            sel = (names == d.name) & np.isin(st, ("executed", "clipped_max"))
+            dv = imp_dv[sel]
+            prop = float(np.sum(imp_prop[names == d.name]))
+        n_sw = 0
+        if sw_name is not None and len(sw_name):
+            n_sw = int(np.sum(np.array([x.decode() if isinstance(x, bytes) else str(x)
+                                         for x in sw_name]) == d.name))
+        deadline = cfg.duration_s if d.deadline_s is None else d.deadline_s
+        out.append(deputy_metrics(
+            d.name, t[:n], roe[:n], np.asarray(d.target_roe_m, float), deadline,
+            np.asarray(cfg.metrics.tolerance_m, float), dv, prop, n_sw, mi[:n], modes,
+            rc[:n], vc[:n], rd[:n]))
+    return out
+
+
+METRIC_COLUMNS = (
+    ("name", "deputy", ""),
+    ("dv_total_mps", "dv [m/s]", ".4f"),
+    ("n_burns", "burns", "d"),
+    ("n_switches", "switches", "d"),
+    ("err_dlambda_m", "a dlambda err [m]", ".1f"),
+    ("err_de_m", "a de err [m]", ".1f"),
+    ("err_di_m", "a di err [m]", ".1f"),
+    ("final_error_norm_m", "|err| [m]", ".1f"),
+    ("time_to_tolerance_h", "t in box [h]", ".1f"),
+    ("min_distance_m", "min dist [m]", ".0f"),
+)
+
+
+def table_rows(metrics: Sequence[DeputyMetrics], extra: Mapping | None = None) -> list[dict]:
+    """Flatten metrics for :func:`format_table` with :data:`METRIC_COLUMNS`."""
+    rows = []
+    for m in metrics:
+        e = m.final_error_m
+        r = dict(m.as_dict())
+        r["err_dlambda_m"] = e[1]
+        r["err_de_m"] = float(np.hypot(e[2], e[3]))
+        r["err_di_m"] = float(np.hypot(e[4], e[5]))
+        r["time_to_tolerance_h"] = m.time_to_tolerance_s / 3600.0
+        r.update(extra or {})
+        rows.append(r)
+    return rows
+
+
+def write_metrics(rec, metrics: Sequence[DeputyMetrics]) -> None:
+    """Store metrics in the run log under ``/metrics/<deputy>`` (attributes and small datasets)."""
+    for m in metrics:
+        g = f"metrics/{m.name}"
+        rec.write_dataset(f"{g}/final_error_m", np.asarray(m.final_error_m, float), units="m",
+                          columns=list(ROE_KEYS), meaning="truth mean ROE minus target at the deadline")
+        rec.write_attrs(g, dv_total_mps=m.dv_total_mps, propellant_used_kg=m.propellant_used_kg,
+                        n_burns=m.n_burns, n_switches=m.n_switches,
+                        final_error_norm_m=m.final_error_norm_m,
+                        max_error_after_convergence_m=m.max_error_after_convergence_m,
+                        time_to_tolerance_s=m.time_to_tolerance_s,
+                        reached_deadline=m.reached_deadline, min_distance_m=m.min_distance_m,
+                        min_rn_separation_m=m.min_rn_separation_m,
+                        time_in_mode_names=list(m.time_in_mode_s.keys()),
+                        time_in_mode_s=np.asarray(list(m.time_in_mode_s.values()), float))

@@ -75,3 +75,28 @@ def build_mission(cfg: RunConfig, area_by_mode: Callable[[str], Mapping[str, flo
         cycle_s=cfg.guidance.cycle_s,
         settings=dict(cfg.guidance.settings),
     )
+
+
+def check_guidance(cfg: RunConfig) -> str | None:
+    """Check the scenario's guidance law and settings without flying (no JVM).
+
+    Loads the law (``guidance.registry.load_law``) and calls its ``setup`` with the mission built
+    from the nominal geometry. Returns the law's class name, or None for ``law = "none"``.
+
+    Raises
+    ------
+    GuidanceInputError
+        Unknown law, bad settings, or a mission the law refuses.
+    ScenarioError
+        A deputy without a target.
+    """
+    if cfg.guidance.law == "none":
+        return None
+    from guidance.registry import load_law
+
+    from .spacecraft import mode_areas_m2
+
+    law = load_law(cfg.guidance.law)
+    buses = {sc.name: sc.bus for sc in cfg.spacecraft}
+    law.setup(build_mission(cfg, lambda name: mode_areas_m2(buses[name])))
+    return type(law).__name__

@@ -32,6 +32,7 @@ from guidance.interface import ROE_NAMES, GuidanceInputError
 from . import __version__
 from .config import RunConfig
 from .errors import CoveyError, EnvironmentSetupError, PropagationError
+from .metrics import run_metrics, write_metrics
 from .recorder import RunRecorder
 from .scenario import resolve_orekit_data
 
@@ -103,6 +104,7 @@ class RunSummary:
     final_mean_roe_m: dict[str, np.ndarray] = field(default_factory=dict)
     dv_total_mps: dict[str, float] = field(default_factory=dict)
     final_error_m: dict[str, np.ndarray] = field(default_factory=dict)
+    metrics: list = field(default_factory=list)
     error: BaseException | None = field(default=None, repr=False)
 
     @property
@@ -349,8 +351,14 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     except OSError as exc:
         raise EnvironmentSetupError(f"cannot write the run log {str(out)!r}: {exc}",
                                     "choose a writable output path with -o PATH") from None
+    law = None
+    if cfg.guidance.law != "none":
+        from guidance.registry import load_law
+
+        law = load_law(cfg.guidance.law)  # GuidanceInputError (exit 2) before anything is flown
     wall0 = time.perf_counter()
     names = tuple(sc.name for sc in cfg.spacecraft)
+    metrics: list = []
     engine: Engine | None = None
     status, reason, tb, error = "failed", "", "", None
     try:
@@ -360,9 +368,16 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
         info = api.boot(None if label == "COVEY_OREKIT_DATA" else data_path)
         _write_boot_meta(rec, info)
         world = api.TruthWorld(cfg, info)
-        engine = Engine(cfg, rec, world, api, progress)
+        if law is None:
+            engine = Engine(cfg, rec, world, api, progress)
+        else:
+            from .engine import ClosedLoopEngine
+
+            engine = ClosedLoopEngine(cfg, rec, world, api, progress, law)
         status, reason = engine.run()
         engine.finish()
+        metrics = run_metrics(rec.file, cfg)
+        write_metrics(rec, metrics)
     except BaseException as exc:  # noqa: BLE001 - recorded, then re-raised or returned
         error = exc
         status = "failed"
@@ -390,5 +405,5 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
         t_end_s=engine.t_s if engine is not None else 0.0, duration_s=cfg.duration_s,
         wall_time_s=wall, n_samples=engine.n_samples if engine is not None else 0,
         spacecraft=names, final_mean_roe_m=final, final_error_m=errors,
-        dv_total_mps=dict(engine.dv_total) if engine else {}, error=error,
+        dv_total_mps=dict(engine.dv_total) if engine else {}, metrics=metrics, error=error,
     )

@@ -46,6 +46,7 @@ from .config import (
     AttitudeModeConfig,
     BusConfig,
     DensityErrorConfig,
+    MetricsConfig,
     EnvironmentConfig,
     ErrorAxesConfig,
     EventsConfig,
@@ -415,7 +416,7 @@ def _apply_override(raw: dict, dotted: str, value: Any, src: str) -> None:
 # ------------------------------------------------------------------------------------------
 
 _TOP = ("run", "environment", "bus", "chief", "deputies", "events", "guidance", "navigation",
-        "actuators")
+        "actuators", "metrics")
 
 
 def _build(raw: dict, src: str, base_dir: Path, stem: str) -> RunConfig:
@@ -477,10 +478,12 @@ def _build(raw: dict, src: str, base_dir: Path, stem: str) -> RunConfig:
     guidance = _guidance(top.table("guidance", ("law", "cycle_s", "settings")))
     navigation = _navigation(top.table("navigation", ("perfect", "absolute", "relative")))
     actuators = _actuators(top.table("actuators", _ACT_KEYS))
+    metrics = _metrics(top.table("metrics", ("tolerance_m",)))
     return RunConfig(
         name=name, epoch_utc=epoch, duration_s=duration_s, log_step_s=log_step_s, seed=seed,
         environment=environment, chief=chief, deputies=tuple(deputies), events=events,
-        guidance=guidance, navigation=navigation, actuators=actuators, orekit_data=orekit_data,
+        guidance=guidance, navigation=navigation, actuators=actuators, metrics=metrics,
+        orekit_data=orekit_data,
     )
 
 
@@ -775,6 +778,14 @@ def _guidance(t: _Table | None) -> GuidanceConfig:
         settings = dict(t.d["settings"])
     return GuidanceConfig(law=law, cycle_s=t.num("cycle_s", 5400.0, lo=1.0, hi=30 * 86400.0),
                           settings=settings)
+
+
+def _metrics(t: _Table | None) -> MetricsConfig:
+    if t is None:
+        return MetricsConfig()
+    tol = t.vec("tolerance_m", 6, MetricsConfig().tolerance_m, lo=0.0, lo_open=True, scalar_ok=True,
+                unit="a-scaled m, da dlambda dex dey dix diy")
+    return MetricsConfig(tolerance_m=tuple(float(x) for x in tol))
 
 
 def _axes(t: _Table | None) -> ErrorAxesConfig:

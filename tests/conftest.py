@@ -43,6 +43,7 @@ class FakeTruthWorld:
         self.t_s, self._last_sample = 0.0, -1.0
         self._samples = {n: [] for n in self.names}
         self._events = []
+        self.schedules, self.impulses = {}, {}
 
     def mode_names(self, name):
         return tuple(self.run.chief.bus.modes)
@@ -50,11 +51,23 @@ class FakeTruthWorld:
     def mode_area_m2(self, name):
         return {m: 0.01 * (k + 1) for k, m in enumerate(self.mode_names(name))}
 
-    def set_mode_schedule(self, name, switches, area_factor_by_mode=None):
-        pass
+    def set_mode_schedule(self, name, switches, area_factor_by_mode=None, area_factor_fn=None):
+        self.schedules.setdefault(name, []).append(list(switches))
 
     def set_impulses(self, name, impulses):
-        pass
+        self.impulses.setdefault(name, []).append(list(impulses))
+
+    def states(self):
+        from guidance.roe import oe_to_rv
+
+        out = {}
+        for n, oe in self.oe0.items():
+            oe_t = oe.copy()
+            oe_t[5] += np.sqrt(3.986004415e14 / oe[0] ** 3) * self.t_s
+            r, v = oe_to_rv(oe_t)
+            out[n] = SimpleNamespace(name=n, t_s=self.t_s, r_eci_m=r, v_eci_mps=v, mass_kg=10.0,
+                                     mode="nominal")
+        return out
 
     def _sample(self, t):
         from guidance.roe import oe_to_rv

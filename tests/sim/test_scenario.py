@@ -84,9 +84,10 @@ def test_every_scenario_file_validates(scenario_paths):
 
 
 def test_packaged_demo_is_the_scenarios_copy(repo_root):
-    assert demo_scenario_path().read_text() == (repo_root / "scenarios/demo_drift.toml").read_text()
+    assert demo_scenario_path().read_text() == (repo_root / "scenarios/demo_formation.toml").read_text()
     cfg = load_scenario(demo_scenario_path())
-    assert len(cfg.deputies) == 2 and cfg.guidance.law == "none"
+    assert len(cfg.deputies) == 2 and cfg.guidance.law == "hybrid_resolve"
+    assert all(d.target_roe_m is not None for d in cfg.deputies)
     assert 2.0 <= cfg.duration_s / 86400.0 <= 5.0
     assert abs(cfg.chief.orbit.a_m - R_EARTH_M - 500e3) < 1e3 and cfg.chief.orbit.sun_synchronous
 
