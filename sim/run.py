@@ -400,6 +400,8 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     final = dict(engine.final_roe) if engine else {}
     errors = {d.name: final[d.name] - np.asarray(d.target_roe_m, dtype=float)
               for d in cfg.deputies if d.target_roe_m is not None and d.name in final}
+    for m in metrics:  # judged at the deadline (sim.metrics), not at the last sample
+        errors[m.name] = np.asarray(m.final_error_m, dtype=float)
     return RunSummary(
         path=out, status=status, reason=reason, name=cfg.name,
         t_end_s=engine.t_s if engine is not None else 0.0, duration_s=cfg.duration_s,
