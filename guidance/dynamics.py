@@ -3,10 +3,10 @@ differential-drag control inputs. Pure numpy.
 
 References
 ----------
-- Koenig, Guffanti, D'Amico, "New State Transition Matrices for Spacecraft Relative Motion in
+- Koenig, Guffanti et al., "New State Transition Matrices for Spacecraft Relative Motion in
   Perturbed Orbits", JGCD 40(7):1749-1768, 2017: the J2 STM of quasi-nonsingular mean ROE
   (eqs. 14-16 define kappa, E..T; the matrix below is their J2 STM in those symbols).
-- Gaias, D'Amico, Ardaens, "Impulsive Maneuvers for Formation Reconfiguration Using Relative
+- Gaias et al., "Impulsive Maneuvers for Formation Reconfiguration Using Relative
   Orbital Elements", JGCD 38(6), 2015: the near-circular impulsive input matrix (Gauss variational
   equations).
 

@@ -6,8 +6,8 @@ Sources beside each check:
   /(1-e^2)^2, mean anomaly n [1 + 3/4 J2 (Re/p)^2 sqrt(1-e^2) (3 cos^2 i - 1)]) [memory for the
   section];
 - 500 km SSO check values [derived] in /work/shared/check-values.md;
-- impulsive input matrix: Gauss variational equations for near-circular orbits (Gaias, D'Amico,
-  Ardaens, JGCD 38(6), 2015), checked against a two-body impulse on the Cartesian state;
+- impulsive input matrix: Gauss variational equations for near-circular orbits (Gaias et al.,
+  JGCD 38(6), 2015), checked against a two-body impulse on the Cartesian state;
 - drag: closed forms derived below from the same Gauss equations; orbit decay rate
   da/dt = -rho sqrt(mu a) Cd A/m and decay per revolution 2 pi (Cd A/m) rho a^2 (Vallado, drag
   section [memory]; check-values.md).

@@ -1,11 +1,11 @@
 """Checks of the min-fuel planning core (guidance.planning).
 
 Sources of the reference values:
-- Gaias, D'Amico, Ardaens, "Impulsive Maneuvers for Formation Reconfiguration Using Relative
+- Gaias et al., "Impulsive Maneuvers for Formation Reconfiguration Using Relative
   Orbital Elements", JGCD 38(6), 2015: near-circular closed forms of the minimum delta-v of a pure
   di change (n a |d(di)|, one normal burn), a pure de change (n a |d(de)| / 2, tangential burns
   half an orbit apart) and a pure da change (n a |d(da)| / 2).
-- Chernick, D'Amico, "New Closed-Form Solutions for Optimal Impulsive Control of Spacecraft
+- Chernick et al., "New Closed-Form Solutions for Optimal Impulsive Control of Spacecraft
   Relative Motion", JGCD 41(2), 2018: in-plane lower bound
   n a max(|d(da)|/2, |d(dlambda)|/(3 n T), |d(de)|/2) for e = 0 [memory for the attribution; the
   bound as tabulated in /work/shared/check-values.md].
@@ -165,7 +165,7 @@ def test_random_reconfigurations(d, x0, orbits):
     T = orbits * P
     x0 = np.array(x0)
     target = np.array(d) * np.array([1, 10, 1, 1, 1, 1])
-    # Chernick & D'Amico 2018 bound needs Keplerian dynamics: the change beyond free drift
+    # Chernick et al. (2018) bound needs Keplerian dynamics: the change beyond free drift
     req = request(target, T, x0_m=x0)
     p = pl.plan_deputy(req)
     assert p.status == "ok", p.message

@@ -1,6 +1,6 @@
 """Checks of guidance.roe: the ROE definition, its inverse, and the two-body element conversions.
 
-Sources: ROE definition of Koenig, Guffanti, D'Amico, "New State Transition Matrices for
+Sources: ROE definition of Koenig, Guffanti et al., "New State Transition Matrices for
 Spacecraft Relative Motion in Perturbed Orbits", JGCD 40(7), 2017, eq. 2 (as quoted in
 /work/shared/check-values.md); osculating circular elements computed by Orekit 13.1
 (``CircularOrbit``, stored in tests/data/meanosc_eckstein_hechler.npz by
