@@ -22,7 +22,6 @@ from __future__ import annotations
 
 import math
 import time
-import traceback as _traceback
 from types import SimpleNamespace
 from typing import Any, Mapping
 
@@ -178,9 +177,9 @@ class ClosedLoopEngine(Engine):
         try:
             out = self.law.step(t_s, nav)
         except Exception as exc:  # noqa: BLE001
+            # one-line reason; the law's traceback reaches /meta/traceback through the chain
             raise GuidanceFailure(self.law_name, t_s,
-                                  f"step() raised {type(exc).__name__}: {exc}\n"
-                                  + _traceback.format_exc()) from exc
+                                  f"step() raised {type(exc).__name__}: {exc}") from exc
         wall = time.perf_counter() - wall0
         cmds = check_output(out, t_s, self.modes, self.law_name)
         self.plans.update(cmds)
