@@ -179,7 +179,8 @@ class ClosedLoopEngine(Engine):
         except Exception as exc:  # noqa: BLE001
             # one-line reason; the law's traceback reaches /meta/traceback through the chain
             raise GuidanceFailure(self.law_name, t_s,
-                                  f"step() raised {type(exc).__name__}: {exc}") from exc
+                                  f"step() raised {type(exc).__name__}: "
+                                  + " ".join(str(exc).split())) from exc
         wall = time.perf_counter() - wall0
         cmds = check_output(out, t_s, self.modes, self.law_name)
         self.plans.update(cmds)
