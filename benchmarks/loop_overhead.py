@@ -1,0 +1,245 @@
+"""Cost of covey's closed loop against a bare Orekit propagation of the same spacecraft.
+
+Closed loop: ``scenarios/demo_formation.toml`` (chief + 2 deputies, 500 km sun-synchronous,
+``full`` preset: 20x20 gravity, NRLMSISE-00 with CSSI data, Sun, Moon, SRP, a Gauss-Markov truth
+density error; realistic navigation and actuator errors), with the duration set to ``--days``
+(default 10), both deadlines to ``--days - 1`` and law ``hybrid_resolve`` re-solving every
+``cycle_s = resolve_s = 5400 s`` (0.95 of the chief's 5677 s orbit), flown through
+:func:`sim.run.run_scenario` exactly as ``covey run`` flies it (60 s truth samples, Eckstein-Hechler
+mean elements and mean ROE, HDF5 log, metrics). The wall time is the whole ``run_scenario`` call
+(truth set-up and metrics included; the JVM is already booted).
+
+Bare: the same three spacecraft with the same force model, built by covey's own builders (the
+initial osculating states, ``ForceEnvironment.static_forces`` and ``TruthWorld._drag_force`` over
+the whole run, which carries the density-error spans and the initial mode's drag area; the
+attitude-mode switches commanded by guidance are not in it), the same integrator settings
+(DormandPrince853, Orekit tolerances for ``position_tolerance_m`` in equinoctial elements, step
+cap ``MAX_STEP_S``, initial step set), and ONE ``propagate()`` per spacecraft over the whole
+duration: no step handler, no event detector, no guidance.
+
+Both are warmed up first (the JIT needs several simulated days, DEVELOPERS.md ``truth``). The bare
+propagation is timed before and after the closed loop; the ratio is closed loop / mean of the two.
+The breakdown times covey's own functions from outside (wrappers installed by this script, not by
+covey): truth propagation (``TruthWorld.advance_to``; the step handler's own Python time is shown
+inside it), sample draining, mean elements, navigation, guidance, actuators, HDF5 logging, metrics.
+
+Usage: ``python benchmarks/loop_overhead.py [--days 10] [--warmup-days 2] [--profile FILE]``
+"""
+
+from __future__ import annotations
+
+import argparse
+import functools
+import os
+import sys
+import tempfile
+import time
+from collections import defaultdict
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+sys.path.insert(0, str(ROOT))
+
+from sim.scenario import load_scenario  # noqa: E402
+
+SCENARIO = ROOT / "scenarios" / "demo_formation.toml"
+CYCLE_S = 5400.0
+
+TIMERS: dict[str, float] = defaultdict(float)
+CALLS: dict[str, int] = defaultdict(int)
+
+
+def make_cfg(days: float, scenario: Path = SCENARIO):
+    ov = {"run.duration_days": float(days), "guidance.law": "hybrid_resolve",
+          "guidance.cycle_s": CYCLE_S, "guidance.settings.resolve_s": CYCLE_S}
+    for k in range(2):
+        ov[f"deputies[{k}].deadline_days"] = max(float(days) - 1.0, 0.5 * float(days))
+    return load_scenario(scenario, ov)
+
+
+def _timed(key: str, fn):
+    @functools.wraps(fn)
+    def wrapper(*a, **kw):
+        t0 = time.perf_counter()
+        try:
+            return fn(*a, **kw)
+        finally:
+            TIMERS[key] += time.perf_counter() - t0
+            CALLS[key] += 1
+
+    wrapper.__wrapped_original__ = fn
+    return wrapper
+
+
+def install_timers() -> None:
+    """Wrap covey's functions with timers (class attributes, so every instance is timed)."""
+    import sim.actuators as act
+    import sim.engine as eng
+    import sim.meanroe as meanroe
+    import sim.navigation as nav
+    import sim.recorder as recorder
+    import sim.run as run
+    import sim.truth as truth
+    from guidance.registry import LAWS
+
+    T = truth.TruthWorld
+    for name, key in (("advance_to", "truth propagation (advance_to)"),
+                      ("drain_samples", "drain samples (modes, areas, density scale)"),
+                      ("states", "truth states"),
+                      ("set_impulses", "actuators + loading"), ("set_mode_schedule", "actuators + loading")):
+        setattr(T, name, _timed(key, getattr(T, name)))
+    T.__init__ = _timed("truth set-up (TruthWorld())", T.__init__)
+    meanroe.mean_elements = _timed("mean elements (Eckstein-Hechler)", meanroe.mean_elements)
+    nav.NavigationModel.estimate = _timed("navigation", nav.NavigationModel.estimate)
+    for name in ("execute_impulses", "realise_switches"):
+        setattr(act.ActuatorModel, name, _timed("actuators + loading", getattr(act.ActuatorModel, name)))
+    law = LAWS["hybrid_resolve"]
+    law.step = _timed("guidance (law.step)", law.step)
+    for name in ("append", "flush", "write_dataset", "write_attrs"):
+        setattr(recorder.RunRecorder, name, _timed("logging (HDF5)", getattr(recorder.RunRecorder, name)))
+    run.run_metrics = _timed("metrics", run.run_metrics)
+    eng.ClosedLoopEngine.finish = _timed("finish (believed density)", eng.ClosedLoopEngine.finish)
+
+
+def time_sampler() -> None:
+    """Wrap the truth step handler's Python method (the proxy class exists after a first world)."""
+    import sim.truth as truth
+
+    cls = truth._SAMPLER_CLASS
+    if cls is None or hasattr(cls.handleStep, "__wrapped_original__"):
+        return
+    cls.handleStep = _timed("  of which step handler (Python)", cls.handleStep)
+
+
+def bare_seconds(cfg) -> tuple[float, list[float]]:
+    """One propagate() per spacecraft over the whole run, same force model, no handler."""
+    from org.hipparchus.ode.nonstiff import DormandPrince853Integrator
+    from org.orekit.orbits import OrbitType
+    from org.orekit.propagation.numerical import NumericalPropagator
+
+    from sim.forces import MAX_STEP_S
+    from sim.truth import TruthWorld
+
+    init = TruthWorld.__init__
+    init = getattr(init, "__wrapped_original__", init)
+    w = TruthWorld.__new__(TruthWorld)
+    init(w, cfg)  # covey's own builders: initial states, static forces, drag with its spans
+    f = w.forces
+    T = float(cfg.duration_s)
+    props = []
+    for c in w._crafts.values():
+        tol = NumericalPropagator.tolerances(float(f.env.position_tolerance_m), c.state.getOrbit(),
+                                             OrbitType.EQUINOCTIAL)
+        integ = DormandPrince853Integrator(1e-3, MAX_STEP_S, tol[0], tol[1])
+        p = NumericalPropagator(integ)
+        p.setOrbitType(OrbitType.EQUINOCTIAL)
+        p.setMu(f.mu_m3ps2)
+        for fm in c.static_forces:
+            p.addForceModel(fm)
+        drag = w._drag_force(c, 0.0, T)
+        if drag is not None:
+            p.addForceModel(drag)
+        p.setInitialState(c.state)
+        integ.setInitialStepSize(MAX_STEP_S)
+        props.append(p)
+    each = []
+    t0 = time.perf_counter()
+    for p in props:
+        t1 = time.perf_counter()
+        p.propagate(f.epoch.shiftedBy(T))
+        each.append(time.perf_counter() - t1)
+    return time.perf_counter() - t0, each
+
+
+def closed_loop_seconds(cfg, out: Path, profile: str | None = None):
+    from sim.run import run_scenario
+
+    if profile:
+        import cProfile
+
+        pr = cProfile.Profile()
+        t0 = time.perf_counter()
+        pr.enable()
+        summary = run_scenario(cfg, out)
+        pr.disable()
+        wall = time.perf_counter() - t0
+        pr.dump_stats(profile)
+    else:
+        t0 = time.perf_counter()
+        summary = run_scenario(cfg, out)
+        wall = time.perf_counter() - t0
+    if summary.status != "ok":
+        raise SystemExit(f"closed loop did not finish: {summary.status} {summary.reason}")
+    return wall, summary
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--days", type=float, default=10.0)
+    ap.add_argument("--warmup-days", type=float, default=3.0)
+    ap.add_argument("--profile", default=None, help="write a cProfile of the closed loop here")
+    ap.add_argument("--keep-log", default=None, help="keep the closed-loop run log at this path")
+    args = ap.parse_args()
+
+    from sim.orekit_boot import boot
+
+    boot()
+    cfg = make_cfg(args.days)
+    warm = make_cfg(args.warmup_days)
+    tmp = Path(tempfile.mkdtemp(prefix="covey_loop_bench_"))
+    # warm-up (not timed): the JIT needs several simulated days before timings settle
+    t0 = time.perf_counter()
+    bare_seconds(warm)
+    closed_loop_seconds(warm, tmp / "warm.h5")
+    warm_s = time.perf_counter() - t0
+
+    bare_before, each_before = bare_seconds(cfg)
+    install_timers()
+    time_sampler()
+    TIMERS.clear()
+    CALLS.clear()
+    out = Path(args.keep_log) if args.keep_log else tmp / "loop.h5"
+    wall, summary = closed_loop_seconds(cfg, out, args.profile)
+    timers = dict(TIMERS)
+    calls = dict(CALLS)
+    bare_after, each_after = bare_seconds(cfg)
+    bare = 0.5 * (bare_before + bare_after)
+
+    n_sc = len(summary.spacecraft)
+    n_cyc = int(round(cfg.duration_s / CYCLE_S))
+    print(f"{cfg.name}: {n_sc} spacecraft, {args.days:g} days, law hybrid_resolve, cycle_s = resolve_s = "
+          f"{CYCLE_S:g} s ({n_cyc} cycles), log_step_s = {cfg.log_step_s:g} s, full force model, "
+          f"realistic navigation and actuators; warm-up {args.warmup_days:g} days ({warm_s:.1f} s)")
+    print(f"bare Orekit, one propagate() per spacecraft : before {bare_before:.2f} s "
+          f"({', '.join(f'{x:.2f}' for x in each_before)}), after {bare_after:.2f} s "
+          f"({', '.join(f'{x:.2f}' for x in each_after)}), mean {bare:.2f} s "
+          f"= {bare / (n_sc * args.days):.3f} s per spacecraft-day")
+    print(f"closed loop, run_scenario wall time          : {wall:.2f} s "
+          f"= {wall / (n_sc * args.days):.3f} s per spacecraft-day")
+    print(f"RATIO closed loop / bare                     : {wall / bare:.3f}  (target <= 1.2)")
+    print("where the closed-loop time goes (s, share of the closed-loop wall time, calls):")
+    top = 0.0
+    for k, v in sorted(timers.items(), key=lambda kv: -kv[1]):
+        if not k.startswith("  "):
+            top += v
+    order = ["truth propagation (advance_to)", "  of which step handler (Python)"]
+    order += [k for k in sorted(timers, key=lambda k: -timers[k]) if k not in order]
+    for k in order:
+        if k in timers:
+            print(f"  {k:46s} {timers[k]:8.2f}  {100 * timers[k] / wall:5.1f} %  {calls.get(k, 0):7d}")
+    print(f"  {'other (engine loop, checks, run set-up)':46s} {wall - top:8.2f}  "
+          f"{100 * (wall - top) / wall:5.1f} %")
+    print(f"  truth propagation minus bare                 {timers.get('truth propagation (advance_to)', 0) - bare:8.2f}")
+    m = {d.name: d for d in summary.metrics}
+    print("run result: " + "; ".join(
+        f"{n}: dv {d.dv_total_mps:.4f} m/s, final |err| {d.final_error_norm_m:.1f} m"
+        for n, d in m.items()))
+    if args.profile:
+        import pstats
+
+        print(f"cProfile written to {args.profile} (profiling slows the closed loop: ratio above not comparable)")
+        pstats.Stats(args.profile).sort_stats("tottime").print_stats(25)
+
+
+if __name__ == "__main__":
+    main()
