@@ -255,6 +255,12 @@ def boot(data_path: str | None = None) -> BootInfo:
         import orekit_jpype
 
         orekit_jpype.initVM()
+    # At interpreter exit, do not destroy the JVM: its shutdown can race Python's finalisation of
+    # the Java proxies of covey's step handlers and end the process with a segmentation fault
+    # (seen intermittently at the end of a pytest session). The process exits all the same.
+    import jpype.config
+
+    jpype.config.destroy_jvm = False
     major = int(jpype.getJVMVersion()[0])
     if major < MIN_JAVA_MAJOR:
         raise EnvironmentSetupError(f"Java {major} found; Orekit 13 needs Java {MIN_JAVA_MAJOR} or newer",
