@@ -486,7 +486,9 @@ class TruthWorld:
                     raise ScenarioError(f"{name}.area_factor_by_mode", {m: fac},
                                         f"non-negative factors for modes in {list(c.modes)}")
             c.factors = {m: float(area_factor_by_mode.get(m, 1.0)) for m in c.modes}
-        c.timeline = [sw for sw in c.timeline if sw.t_cmd < self.t_s - _EPS_T or sw.kind == "initial"]
+        # pending switches are replaced; area-factor changes already in effect are not switches
+        c.timeline = [sw for sw in c.timeline
+                      if sw.t_cmd < self.t_s - _EPS_T or sw.kind in ("initial", "area_factor")]
         if area_factor_by_mode is not None:
             cur = c.mode_at(self.t_s)
             area = c.areas[cur] * c.factors[cur]
