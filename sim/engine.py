@@ -20,6 +20,7 @@ ROE), guidance-believed density at each spacecraft.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import time
 from types import SimpleNamespace
@@ -191,12 +192,11 @@ class ClosedLoopEngine(Engine):
                 continue
             imps = [i for i in plan.impulses if t_s - _EPS_T <= i.t_s < t_next_s - _EPS_T]
             sws = [s for s in plan.mode_switches if t_s - _EPS_T <= s.t_s < t_next_s - _EPS_T]
-            executed = self.act.execute_impulses(name, imps, t_not_before_s=t_s)
-            fired = []
-            for e in executed:
-                t_exec = min(max(e.t_exec_s, t_s), t_next_s - 1e-3)
-                if e.fired:
-                    fired.append((t_exec, np.asarray(e.dv_exec_rtn_mps, float)))
+            # a time error cannot move a burn out of its cycle: the truth flies it at the held
+            # time, and the log records that time as executed
+            executed = [dataclasses.replace(e, t_exec_s=min(max(e.t_exec_s, t_s), t_next_s - 1e-3))
+                        for e in self.act.execute_impulses(name, imps, t_not_before_s=t_s)]
+            fired = [(e.t_exec_s, np.asarray(e.dv_exec_rtn_mps, float)) for e in executed if e.fired]
             self.world.set_impulses(name, fired)
             realised = self.act.realise_switches(name, sws)
             if realised or name in cmds:
