@@ -39,8 +39,6 @@ from sim.recorder import read_log
 from sim.run import run_scenario
 from sim.scenario import load_scenario
 
-from conftest import FakeTruthWorld  # tests/conftest.py: the stand-in behind the fake_truth fixture
-
 THIS = "tests.sim.test_closed_loop"
 REPO = Path(__file__).resolve().parents[2]
 NSIG = 4.0
@@ -148,6 +146,27 @@ def _demo(repo_root, **over):
     return load_scenario(repo_root / "scenarios/demo_formation.toml", over)
 
 
+_FAKE_WORLD = []
+
+
+def _fake_world_class():
+    """The fake truth of tests/conftest.py (behind the fake_truth fixture), remembering its
+    instances so a test can read what the engine loaded into it. Imported late: this module is
+    also imported by the engine, to load the laws above."""
+    if not _FAKE_WORLD:
+        from conftest import FakeTruthWorld
+
+        class FakeWorld(FakeTruthWorld):
+            instances: list = []
+
+            def __init__(self, *a, **k):
+                super().__init__(*a, **k)
+                FakeWorld.instances.append(self)
+
+        _FAKE_WORLD.append(FakeWorld)
+    return _FAKE_WORLD[0]
+
+
 def _str(a):
     return [x.decode() if isinstance(x, bytes) else str(x) for x in np.asarray(a).reshape(-1)]
 
@@ -220,7 +239,7 @@ def test_bad_law_cli_exit_1_one_line(tmp_path, repo_root, fake_truth, capsys):
 # ------------------------------------------------------------------------------------------
 
 NAV_DT_S = 10.0  # guidance cycle = navigation update: one fresh fix per logged row
-NAV_CYCLES = 300
+NAV_CYCLES = 2000
 # per axis (R, T, N): white, Gauss-Markov sigma, GM tau. Axis patterns: white only, GM only, both.
 # Time constants near the update interval make the lag-1 autocorrelation most informative about tau.
 NAV_MODEL = {
@@ -285,22 +304,14 @@ ACT = {"perfect": False, "dv_scale_sigma": 0.03, "dv_fixed_sigma_mps": 2e-4, "po
 ISP_S = 3000.0  # so that 500 cycles of BurnLaw never run out of propellant
 
 
-class FakeWorld(FakeTruthWorld):
-    """The fake truth, remembering its instances (to read what the engine loaded into it)."""
-
-    instances: list = []
-
-    def __init__(self, *a, **k):
-        super().__init__(*a, **k)
-        FakeWorld.instances.append(self)
-
-
 @pytest.fixture(scope="module")
 def long_run(tmp_path_factory):
     """One run of NAV_CYCLES guidance cycles of NAV_DT_S on the Keplerian fake truth with
     BurnLaw, the navigation model NAV_MODEL and the actuator errors ACT. Returns (cfg, log)."""
     import sim.run
     from guidance.roe import oe_to_roe, rv_to_oe
+
+    FakeWorld = _fake_world_class()
 
     boot_info = SimpleNamespace(data_path="/fake", data_source="fake", orekit_version="fake",
                                 java_version="fake", jpype_version="fake", data_files=())
@@ -441,7 +452,7 @@ def test_actuator_execution_statistics_and_limits(long_run):
     assert abs(np.std(dt) / ts - 1) <= NSIG / math.sqrt(2 * dt.size)
     out["time_sd_s"] = (float(np.std(dt)), ts)
     # what is logged as executed is what the truth was given: time and delta-v of every fired burn
-    world = FakeWorld.instances[-1]
+    world = _fake_world_class().instances[-1]
     for name in ("beta", "gamma"):
         loaded = [x for batch in world.impulses[name] for x in batch]
         sel = fired & (imp.name == name)
