@@ -35,11 +35,52 @@ class DeputyMetrics:
     time_to_tolerance_s: float  # nan when never entered
     reached_deadline: bool
     time_in_mode_s: dict = field(default_factory=dict)
-    min_distance_m: float = float("nan")
-    min_rn_separation_m: float = float("nan")
+    min_distance_m: float = float("nan")  # to the chief, over the logged samples
+    min_rn_separation_m: float = float("nan")  # radial/normal, in the chief's RTN frame
+    min_distance_any_m: float = float("nan")  # to any other spacecraft (chief or deputy)
+    min_distance_other: str = ""  # the spacecraft of that closest approach
+    t_min_distance_any_s: float = float("nan")
+    t_min_rn_separation_s: float = float("nan")
+    keep_out_violated: bool = False  # min_distance_any_m < events.keep_out_radius_m (when > 0)
+    rn_separation_violated: bool = False  # min_rn_separation_m < events.min_rn_separation_m (> 0)
 
     def as_dict(self) -> dict:
         return asdict(self)
+
+
+def safety_flags(m: "DeputyMetrics", keep_out_radius_m: float, min_rn_separation_m: float
+                 ) -> "DeputyMetrics":
+    """Set the safety-monitor flags of ``m`` against the scenario thresholds (0 = monitor off)."""
+    m.keep_out_violated = bool(keep_out_radius_m > 0 and m.min_distance_any_m < keep_out_radius_m)
+    m.rn_separation_violated = bool(min_rn_separation_m > 0
+                                    and m.min_rn_separation_m < min_rn_separation_m)
+    return m
+
+
+def closest_approach(t_s, r_eci_m, others: Mapping[str, np.ndarray]) -> tuple[float, str, float]:
+    """Smallest distance from one spacecraft to any of ``others`` over common samples.
+
+    Parameters
+    ----------
+    t_s : (K,) sample times, s.
+    r_eci_m : (K, 3) positions of the spacecraft.
+    others : name -> (K, 3) positions of the other spacecraft at the same times.
+
+    Returns
+    -------
+    (distance_m, other_name, t_s) ; (nan, "", nan) without samples.
+    """
+    best = (float("nan"), "", float("nan"))
+    r = np.asarray(r_eci_m, float).reshape(-1, 3)
+    for name, ro in others.items():
+        n = min(len(r), len(ro))
+        if n == 0:
+            continue
+        d = np.linalg.norm(np.asarray(ro, float)[:n] - r[:n], axis=1)
+        k = int(np.argmin(d))
+        if not best[1] or d[k] < best[0]:
+            best = (float(d[k]), name, float(np.asarray(t_s, float)[k]))
+    return best
 
 
 def rtn_relative(r_c, v_c, r_d):
@@ -110,6 +151,7 @@ def deputy_metrics(
         max_after = float("nan")
     dv = np.asarray(dv_exec_rtn_mps, float).reshape(-1, 3)
     rel = rtn_relative(np.asarray(r_chief_eci_m), np.asarray(v_chief_eci_mps), np.asarray(r_deputy_eci_m))
+    rn = np.hypot(rel[:, 0], rel[:, 2]) if rel.size else np.zeros(0)
     return DeputyMetrics(
         name=name,
         dv_total_mps=float(np.sum(np.linalg.norm(dv, axis=1))),
@@ -123,7 +165,8 @@ def deputy_metrics(
         reached_deadline=reached,
         time_in_mode_s=time_in_modes(t_s, np.asarray(mode_index), mode_names),
         min_distance_m=float(np.min(np.linalg.norm(rel, axis=1))) if rel.size else float("nan"),
-        min_rn_separation_m=float(np.min(np.hypot(rel[:, 0], rel[:, 2]))) if rel.size else float("nan"),
+        min_rn_separation_m=float(np.min(rn)) if rn.size else float("nan"),
+        t_min_rn_separation_s=float(t_s[int(np.argmin(rn))]) if rn.size else float("nan"),
     )
 
 
@@ -200,10 +243,17 @@ def run_metrics(f, cfg) -> list[DeputyMetrics]:
             n_sw = int(np.sum(np.array([x.decode() if isinstance(x, bytes) else str(x)
                                          for x in sw_name]) == d.name))
         deadline = cfg.duration_s if d.deadline_s is None else d.deadline_s
-        out.append(deputy_metrics(
+        m = deputy_metrics(
             d.name, t[:n], roe[:n], np.asarray(d.target_roe_m, float), deadline,
             np.asarray(cfg.metrics.tolerance_m, float), dv, prop, n_sw, mi[:n], modes,
-            rc[:n], vc[:n], rd[:n]))
+            rc[:n], vc[:n], rd[:n])
+        # closest approach to any other spacecraft (deputy pairs count for the keep-out monitor)
+        others = {sc.name: arr(f"spacecraft/{sc.name}/truth/r_eci_m", np.zeros((0, 3)))
+                  for sc in cfg.spacecraft if sc.name != d.name}
+        m.min_distance_any_m, m.min_distance_other, m.t_min_distance_any_s = closest_approach(
+            t, rd, others)
+        out.append(safety_flags(m, float(cfg.events.keep_out_radius_m),
+                                float(cfg.events.min_rn_separation_m)))
     return out
 
 
@@ -218,6 +268,8 @@ METRIC_COLUMNS = (
     ("final_error_norm_m", "|err| [m]", ".1f"),
     ("time_to_tolerance_h", "t in box [h]", ".1f"),
     ("min_distance_m", "min dist [m]", ".0f"),
+    ("min_rn_separation_m", "min RN sep [m]", ".0f"),
+    ("safety", "safety", ""),
 )
 
 
@@ -231,6 +283,9 @@ def table_rows(metrics: Sequence[DeputyMetrics], extra: Mapping | None = None) -
         r["err_de_m"] = float(np.hypot(e[2], e[3]))
         r["err_di_m"] = float(np.hypot(e[4], e[5]))
         r["time_to_tolerance_h"] = m.time_to_tolerance_s / 3600.0
+        flags = [f"keep-out ({m.min_distance_other})" if m.keep_out_violated else "",
+                 "RN separation" if m.rn_separation_violated else ""]
+        r["safety"] = ", ".join(f for f in flags if f) or "ok"
         r.update(extra or {})
         rows.append(r)
     return rows
@@ -249,5 +304,11 @@ def write_metrics(rec, metrics: Sequence[DeputyMetrics]) -> None:
                         time_to_tolerance_s=m.time_to_tolerance_s,
                         reached_deadline=m.reached_deadline, min_distance_m=m.min_distance_m,
                         min_rn_separation_m=m.min_rn_separation_m,
+                        min_distance_any_m=m.min_distance_any_m,
+                        min_distance_other=m.min_distance_other,
+                        t_min_distance_any_s=m.t_min_distance_any_s,
+                        t_min_rn_separation_s=m.t_min_rn_separation_s,
+                        keep_out_violated=m.keep_out_violated,
+                        rn_separation_violated=m.rn_separation_violated,
                         time_in_mode_names=list(m.time_in_mode_s.keys()),
                         time_in_mode_s=np.asarray(list(m.time_in_mode_s.values()), float))

@@ -496,3 +496,75 @@ def test_switches_logged_commanded_and_executed(long_run):
     slew = cfg.deputies[0].bus.slew_time_s
     assert np.allclose(t0, t_cmd) and np.allclose(t1 - t0, slew)
     assert np.all(np.isfinite(fac)) and np.all(fac > 0) and np.std(fac) > 0
+
+
+# ------------------------------------------------------------------------------------------
+# Safety monitors (sim.metrics) against an independent computation from the logged truth
+# ------------------------------------------------------------------------------------------
+
+
+def _rn_separation(r_c, v_c, r_d):
+    """|(radial, normal)| of r_d - r_c in the chief's RTN frame, written here independently:
+    radial along r_c, normal along r_c x v_c (common practice, no source)."""
+    dr = r_d - r_c
+    u_r = r_c / np.linalg.norm(r_c, axis=1)[:, None]
+    h = np.cross(r_c, v_c)
+    u_n = h / np.linalg.norm(h, axis=1)[:, None]
+    return np.hypot(np.einsum("ij,ij->i", dr, u_r), np.einsum("ij,ij->i", dr, u_n))
+
+
+def _check_safety_metrics(log, cfg, metrics):
+    """The logged and returned safety metrics equal a computation from the logged truth."""
+    names = [sc.name for sc in cfg.spacecraft]
+    r = {n: log.get(f"spacecraft/{n}/truth/r_eci_m") for n in names}
+    t = log.get(f"spacecraft/{names[0]}/truth/t_s")
+    vc = log.get(f"spacecraft/{names[0]}/truth/v_eci_mps")
+    ko, rn_min = cfg.events.keep_out_radius_m, cfg.events.min_rn_separation_m
+    for m in metrics:
+        d_chief = np.linalg.norm(r[m.name] - r[names[0]], axis=1)
+        d_any = {o: np.linalg.norm(r[m.name] - r[o], axis=1) for o in names if o != m.name}
+        other = min(d_any, key=lambda o: d_any[o].min())
+        rn = _rn_separation(r[names[0]], vc, r[m.name])
+        assert m.min_distance_m == pytest.approx(d_chief.min(), rel=1e-9, abs=1e-9)
+        assert m.min_distance_any_m == pytest.approx(d_any[other].min(), rel=1e-9, abs=1e-9)
+        assert m.min_distance_other == other and m.t_min_distance_any_s == t[np.argmin(d_any[other])]
+        assert m.min_rn_separation_m == pytest.approx(rn.min(), rel=1e-9, abs=1e-9)
+        assert m.t_min_rn_separation_s == t[np.argmin(rn)]
+        assert m.keep_out_violated == bool(ko > 0 and d_any[other].min() < ko)
+        assert m.rn_separation_violated == bool(rn_min > 0 and rn.min() < rn_min)
+        a = log.attrs(f"metrics/{m.name}")
+        assert bool(a["keep_out_violated"]) == m.keep_out_violated
+        assert bool(a["rn_separation_violated"]) == m.rn_separation_violated
+        assert a["min_distance_any_m"] == m.min_distance_any_m and a["min_distance_other"] == other
+        assert a["min_rn_separation_m"] == m.min_rn_separation_m
+
+
+def test_safety_monitors_flag_thresholds(tmp_path, repo_root, fake_truth):
+    # beta 100 m ahead of the chief on the same orbit (no radial/normal separation); gamma 130 m
+    # ahead with parallel e/i vectors of 25 m (radial/normal separation 25 m all along): both are
+    # more than 45 m from the chief, but closer than that to each other
+    over = {"run.duration_s": 6000.0, "run.log_step_s": 30.0, "guidance.law": f"{THIS}:HoldLaw",
+            "deputies[0].roe_m": [0.0, 100.0, 0.0, 0.0, 0.0, 0.0],
+            "deputies[1].roe_m": [0.0, 130.0, 0.0, 25.0, 0.0, 25.0],
+            "events.keep_out_radius_m": 45.0, "events.min_rn_separation_m": 20.0}
+    cfg = _demo(repo_root, **over)
+    s = run_scenario(cfg, tmp_path / "s.h5")
+    assert s.status == "ok", s.reason
+    log = read_log(s.path)
+    _check_safety_metrics(log, cfg, s.metrics)
+    m = {x.name: x for x in s.metrics}
+    for n, other in (("beta", "gamma"), ("gamma", "beta")):
+        assert m[n].keep_out_violated and m[n].min_distance_other == other
+        assert m[n].min_distance_m > 45.0  # the chief alone would not flag them
+    assert m["beta"].rn_separation_violated and m["beta"].min_rn_separation_m < 1.0
+    assert not m["gamma"].rn_separation_violated and 24.0 < m["gamma"].min_rn_separation_m < 26.0
+    # monitors off (thresholds 0): nothing flagged, the distances are still computed
+    cfg0 = _demo(repo_root, **{**over, "events.keep_out_radius_m": 0.0, "events.min_rn_separation_m": 0.0})
+    s0 = run_scenario(cfg0, tmp_path / "s0.h5")
+    _check_safety_metrics(read_log(s0.path), cfg0, s0.metrics)
+    assert not any(x.keep_out_violated or x.rn_separation_violated for x in s0.metrics)
+    # covey run prints the flags in its table
+    from sim.metrics import METRIC_COLUMNS, format_table, table_rows
+
+    table = format_table(table_rows(s.metrics), METRIC_COLUMNS)
+    assert "keep-out (gamma), RN separation" in table and "keep-out (beta)" in table
