@@ -480,6 +480,42 @@ def test_actuator_execution_statistics_and_limits(long_run):
     print("actuator statistics (measured, model):", out)
 
 
+def test_burns_the_propellant_cannot_pay_for_are_logged_not_flown(tmp_path, repo_root, fake_truth):
+    """Perfect actuators, 3 g of propellant at Isp 60 s (about 0.18 m/s): BurnLaw's burns run it
+    out within two cycles; a burn is dropped exactly when its rocket-equation propellant exceeds
+    what is left (Tsiolkovsky; g0 = 9.80665 m/s^2)."""
+    from sim.actuators import G0_MPS2
+
+    prop0 = 0.003
+    cfg = _demo(repo_root, **{"run.duration_s": 60.0, "run.log_step_s": 10.0, "guidance.cycle_s": 10.0,
+                              "guidance.law": f"{THIS}:BurnLaw", "actuators.perfect": True,
+                              "bus.sixu.thruster.propellant_kg": prop0})
+    s = run_scenario(cfg, tmp_path / "p.h5")
+    assert s.status == "ok", s.reason
+    imp = _impulse_table(read_log(s.path))
+    th = cfg.deputies[0].bus.thruster
+    for name in ("beta", "gamma"):
+        sel = np.nonzero(imp.name == name)[0]
+        sel = sel[np.argsort(imp.t_cmd[sel], kind="stable")]
+        left = prop0
+        n_drop = 0
+        for k in sel:
+            mag = min(float(np.linalg.norm(imp.dv_cmd[k])), th.dv_max_per_burn_mps)
+            if imp.status[k] in ("dropped_min_bit",):
+                continue
+            need = imp.mass[k] * -math.expm1(-mag / (th.isp_s * G0_MPS2))
+            if need > left:
+                assert imp.status[k] == "dropped_no_propellant" and imp.used[k] == 0.0
+                assert np.all(imp.dv_exec[k] == 0.0)
+                n_drop += 1
+            else:
+                assert imp.status[k] in ("executed", "clipped_max")
+                assert imp.used[k] == pytest.approx(need, rel=1e-12)
+                left -= imp.used[k]
+        assert n_drop >= 10 and 0.0 <= left < prop0 and np.sum(imp.used[sel]) <= prop0
+        assert {m.name: m for m in s.metrics}[name].propellant_used_kg == pytest.approx(prop0 - left, rel=1e-12)
+
+
 def test_switches_logged_commanded_and_executed(long_run):
     cfg, _, log = long_run
     g = "commands/switches"
