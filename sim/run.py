@@ -5,7 +5,9 @@
 (free drift for now: nothing to do), advances the truth to the end of the cycle and records what
 the truth world produced during the interval (:meth:`Engine.record_interval`). Navigation,
 guidance and actuators slot into :meth:`Engine.plan` and add their own log groups with
-``self.rec.append(...)``.
+``self.rec.append(...)``; the engine's appends are buffered in memory and written in batches
+(:class:`BufferedLog`, at least once per simulated day and every 30 s of wall time, and at the
+end or on failure).
 
 Any exception ends the run with ``status = "failed"``: the reason and traceback are stored in the
 log, the data recorded so far are kept, and the file is renamed to its final name as usual.
@@ -36,7 +38,7 @@ from .metrics import run_metrics, write_metrics
 from .recorder import RunRecorder
 from .scenario import resolve_orekit_data
 
-__all__ = ["RunSummary", "Engine", "run_scenario", "git_commit", "MEAN_OE_NAMES"]
+__all__ = ["RunSummary", "Engine", "BufferedLog", "run_scenario", "git_commit", "MEAN_OE_NAMES"]
 
 MEAN_OE_NAMES = ("a_m", "ex", "ey", "i_deg", "raan_deg", "u_deg")
 """Datasets of ``/spacecraft/<name>/mean_oe`` (Eckstein-Hechler mean elements, TOD)."""
@@ -139,6 +141,109 @@ class RunSummary:
             txt += f" ({self.reason})"
         return txt + f" -> {self.path}"
 
+LOG_WRITE_SIM_S = 86400.0
+"""The engine's log buffer is written to the HDF5 file after at most this much simulated time, s."""
+
+LOG_WRITE_WALL_S = 30.0
+"""... or after at most this much wall-clock time, s (whichever comes first)."""
+
+
+class BufferedLog:
+    """A :class:`sim.recorder.RunRecorder` whose :meth:`append` calls are kept in memory and
+    written group by group in one append each (:meth:`write`).
+
+    One h5py append costs about 0.3-1 ms whatever its size (resize, selection, chunk
+    read-modify-write of a compressed chunk); a closed-loop cycle makes about a hundred small
+    ones. Buffered, the rows of many cycles go to each dataset in one call. The file's content is
+    the same as with direct appends: the same datasets, rows, dtypes (a dataset's dtype is that of
+    its first rows, as with the recorder), units and attributes. Everything else (``file``,
+    ``write_dataset``, ``write_attrs``, ``flush``, ``close``, ...) writes the pending rows first and
+    then goes to the recorder, so a reader of ``file`` always sees every row appended so far.
+    """
+
+    def __init__(self, rec: RunRecorder):
+        self.rec = rec
+        self._pending: dict[str, list[tuple[Any, Any, dict[str, np.ndarray]]]] = {}
+        self.n_pending = 0
+
+    def append(self, group_path: str, units=None, attrs=None, **arrays: Any) -> None:
+        """Queue rows for :meth:`RunRecorder.append` (same arguments; checked here: the same row
+        count in every array of a call, the same row shape as earlier queued rows)."""
+        if not arrays:
+            raise ValueError("append needs at least one array")
+        data = {}
+        for k, v in arrays.items():
+            a = np.asarray(v)
+            if a.dtype.kind in ("U", "S", "O"):
+                a = np.asarray([str(x) for x in a.ravel()], dtype=object).reshape(a.shape)
+            data[k] = a.reshape(1) if a.ndim == 0 else a
+        rows = {a.shape[0] for a in data.values()}
+        if len(rows) != 1:
+            raise ValueError(f"append to {group_path!r}: arrays have different row counts "
+                             + str({k: a.shape[0] for k, a in data.items()}))
+        queue = self._pending.setdefault(group_path, [])
+        if queue and set(queue[0][2]) == set(data):
+            first = queue[0][2]
+            for k, a in data.items():
+                if a.shape[1:] != first[k].shape[1:]:
+                    raise ValueError(f"append to {group_path}/{k}: row shape {a.shape[1:]} does not "
+                                     f"match the dataset's {first[k].shape[1:]}")
+        queue.append((units, attrs, data))
+        self.n_pending += 1
+
+    def write(self) -> None:
+        """Append every queued row to the file (one append per group and run of equal keys)."""
+        pending, self._pending, self.n_pending = self._pending, {}, 0
+        f = self.rec.file
+        for group, queue in pending.items():
+            k = 0
+            while k < len(queue):
+                keys = set(queue[k][2])
+                m = k + 1
+                while m < len(queue) and set(queue[m][2]) == keys:
+                    m += 1
+                units, attrs, first = queue[k]
+                if m - k == 1:
+                    merged = first
+                else:
+                    merged = {}
+                    for name, a0 in first.items():
+                        parts = [q[2][name] for q in queue[k:m]]
+                        a = np.concatenate(parts, axis=0)
+                        path = f"{group}/{name}"
+                        if a0.dtype.kind != "O":
+                            # the dtype of a new dataset is that of its first rows (as the
+                            # recorder does); an existing one converts on write anyway
+                            dt = f[path].dtype if path in f else a0.dtype
+                            a = a.astype(dt, copy=False)
+                        merged[name] = a
+                self.rec.append(group, units=units, attrs=attrs, **merged)
+                k = m
+
+    # -- everything else writes the queue first ---------------------------------------------
+    @property
+    def file(self):
+        self.write()
+        return self.rec.file
+
+    def flush(self) -> None:
+        self.write()
+        self.rec.flush()
+
+    def write_dataset(self, *a, **kw) -> None:
+        self.write()
+        self.rec.write_dataset(*a, **kw)
+
+    def write_attrs(self, *a, **kw) -> None:
+        self.write()
+        self.rec.write_attrs(*a, **kw)
+
+    def __getattr__(self, name: str) -> Any:
+        if name.startswith("_"):
+            raise AttributeError(name)
+        self.write()
+        return getattr(self.rec, name)
+
 
 class Engine:
     """The cycle loop of one run.
@@ -157,7 +262,10 @@ class Engine:
 
     def __init__(self, cfg: RunConfig, rec: RunRecorder, world: Any, api: SimpleNamespace,
                  progress: ProgressFn | None = None):
-        self.cfg, self.rec, self.world, self.api = cfg, rec, world, api
+        self.cfg, self.world, self.api = cfg, world, api
+        self.rec = rec if isinstance(rec, BufferedLog) else BufferedLog(rec)
+        self._log_written_t_s = 0.0
+        self._log_written_wall = time.perf_counter()
         self.progress = progress
         self.names: tuple[str, ...] = tuple(world.names)
         self.chief = self.names[0]
@@ -277,7 +385,17 @@ class Engine:
                             name=[str(e.get("name", "")) for e in events],
                             kind=[str(e.get("kind", "")) for e in events],
                             detail=[str(e.get("detail", "")) for e in events])
+        now = time.perf_counter()
+        if (self.t_s - self._log_written_t_s >= LOG_WRITE_SIM_S - 1e-6
+                or now - self._log_written_wall >= LOG_WRITE_WALL_S):
+            self.flush_log()
+
+    def flush_log(self) -> None:
+        """Write the buffered log rows to the file and flush it (also done at least every
+        :data:`LOG_WRITE_SIM_S` simulated or :data:`LOG_WRITE_WALL_S` wall-clock seconds)."""
         self.rec.flush()
+        self._log_written_t_s = self.t_s
+        self._log_written_wall = time.perf_counter()
 
 
 def _config_json(cfg: RunConfig) -> str:
@@ -351,6 +469,7 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     except OSError as exc:
         raise EnvironmentSetupError(f"cannot write the run log {str(out)!r}: {exc}",
                                     "choose a writable output path with -o PATH") from None
+    log = BufferedLog(rec)  # the engine's appends, written in batches (BufferedLog)
     law = None
     if cfg.guidance.law != "none":
         from guidance.registry import load_law
@@ -369,13 +488,15 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
         _write_boot_meta(rec, info)
         world = api.TruthWorld(cfg, info)
         if law is None:
-            engine = Engine(cfg, rec, world, api, progress)
+            engine = Engine(cfg, log, world, api, progress)
         else:
             from .engine import ClosedLoopEngine
 
-            engine = ClosedLoopEngine(cfg, rec, world, api, progress, law)
+            engine = ClosedLoopEngine(cfg, log, world, api, progress, law)
         status, reason = engine.run()
+        engine.flush_log()
         engine.finish()
+        log.write()
         metrics = run_metrics(rec.file, cfg)
         write_metrics(rec, metrics)
     except BaseException as exc:  # noqa: BLE001 - recorded, then re-raised or returned
@@ -388,6 +509,10 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
                 engine.record_interval()
             except Exception:  # noqa: BLE001
                 pass
+        try:  # rows buffered by the engine
+            log.write()
+        except Exception:  # noqa: BLE001
+            pass
     finally:
         wall = time.perf_counter() - wall0
         try:
