@@ -29,6 +29,7 @@ from typing import Any, Mapping
 import numpy as np
 
 from guidance.interface import (
+    Diagnostics,
     GuidanceInputError,
     GuidanceOutput,
     Impulse,
@@ -74,6 +75,12 @@ def _finite(x) -> bool:
         return False
 
 
+def _time(x) -> bool:
+    """A finite real number (a time in s); strings and booleans are not."""
+    return isinstance(x, (int, float, np.integer, np.floating)) and not isinstance(x, bool) \
+        and math.isfinite(float(x))
+
+
 def check_output(out: Any, t_s: float, known_modes: Mapping[str, tuple[str, ...]], law: str
                  ) -> dict[str, SpacecraftCommand]:
     """Validate a law's answer; returns its commands by spacecraft name.
@@ -94,15 +101,19 @@ def check_output(out: Any, t_s: float, known_modes: Mapping[str, tuple[str, ...]
             raise GuidanceFailure(law, t_s, f"command for unknown spacecraft {name!r}; known: {sorted(known_modes)}")
         if not isinstance(c, SpacecraftCommand):
             raise GuidanceFailure(law, t_s, f"commands[{name!r}] is {type(c).__name__}, expected SpacecraftCommand")
+        for field in ("mode_switches", "impulses"):
+            if not isinstance(getattr(c, field), (tuple, list)):
+                raise GuidanceFailure(law, t_s, f"commands[{name!r}].{field} is "
+                                      f"{type(getattr(c, field)).__name__}, expected a tuple")
         for k, sw in enumerate(c.mode_switches):
-            if not isinstance(sw, ModeSwitch) or not _finite(sw.t_s):
+            if not isinstance(sw, ModeSwitch) or not _time(sw.t_s):
                 raise GuidanceFailure(law, t_s, f"commands[{name!r}].mode_switches[{k}] = {sw!r}: a ModeSwitch with finite t_s")
             if sw.mode not in known_modes[name]:
                 raise GuidanceFailure(law, t_s, f"commands[{name!r}].mode_switches[{k}].mode = {sw.mode!r}: one of {list(known_modes[name])}")
             if sw.t_s < t_s - _EPS_T:
                 raise GuidanceFailure(law, t_s, f"commands[{name!r}].mode_switches[{k}].t_s = {sw.t_s:.3f} s is before the cycle time")
         for k, imp in enumerate(c.impulses):
-            if not isinstance(imp, Impulse) or not _finite(imp.t_s):
+            if not isinstance(imp, Impulse) or not _time(imp.t_s):
                 raise GuidanceFailure(law, t_s, f"commands[{name!r}].impulses[{k}] = {imp!r}: an Impulse with finite t_s")
             dv = np.asarray(imp.dv_rtn_mps, dtype=float) if _finite(imp.dv_rtn_mps) else None
             if dv is None or dv.shape != (3,):
@@ -111,6 +122,10 @@ def check_output(out: Any, t_s: float, known_modes: Mapping[str, tuple[str, ...]
                 raise GuidanceFailure(law, t_s, f"commands[{name!r}].impulses[{k}].t_s = {imp.t_s:.3f} s is before the cycle time")
         result[name] = c
     d = out.diagnostics
+    if not isinstance(d, Diagnostics):
+        raise GuidanceFailure(law, t_s, f"GuidanceOutput.diagnostics is {type(d).__name__}, expected Diagnostics")
+    if not _time(d.solve_time_s):
+        raise GuidanceFailure(law, t_s, f"diagnostics.solve_time_s = {d.solve_time_s!r}: a finite number in s")
     for k, v in dict(getattr(d, "dv_remaining_mps", {}) or {}).items():
         if not _finite(v):
             raise GuidanceFailure(law, t_s, f"diagnostics.dv_remaining_mps[{k!r}] = {v!r}: a finite number in m/s")

@@ -63,7 +63,9 @@ class RaisingLaw:
     """Commands one small burn per deputy per cycle, then misbehaves at ``fail_at_s``.
 
     Settings: ``fail_at_s`` (s), ``how``: ``"raise"``, ``"nan"`` (NaN delta-v), ``"mode"`` (unknown
-    attitude mode), ``"past"`` (impulse before the cycle time), ``"type"`` (returns a dict).
+    attitude mode), ``"past"`` (impulse before the cycle time), ``"type"`` (returns a dict),
+    ``"diagnostics"`` (None for diagnostics), ``"bare_impulse"`` (an Impulse, not a tuple of them),
+    ``"solve_time"`` (a string for the solve time).
     """
 
     def setup(self, mission):
@@ -90,6 +92,12 @@ class RaisingLaw:
             bad = SpacecraftCommand(name, impulses=(Impulse(t_s - 100.0, np.array([0.0, 1e-3, 0.0])),))
         elif self.how == "type":
             return {"commands": {}}
+        elif self.how == "diagnostics":
+            return GuidanceOutput({}, None)
+        elif self.how == "bare_impulse":
+            bad = SpacecraftCommand(name, impulses=Impulse(t_s + 5.0, np.zeros(3)))
+        elif self.how == "solve_time":
+            return GuidanceOutput({}, Diagnostics(solve_time_s="fast"))
         else:
             raise AssertionError(self.how)
         return GuidanceOutput({name: bad}, Diagnostics(status="ok"))
@@ -181,6 +189,9 @@ FAIL_CASES = {
     "mode": ("commands['beta'].mode_switches[0].mode = 'sideways'", "one of ['max_drag', 'min_drag', 'nominal']"),
     "past": ("commands['beta'].impulses[0].t_s = 16100.000 s is before the cycle time",),
     "type": ("step() returned dict, expected GuidanceOutput",),
+    "diagnostics": ("GuidanceOutput.diagnostics is NoneType, expected Diagnostics",),
+    "bare_impulse": ("commands['beta'].impulses is Impulse, expected a tuple",),
+    "solve_time": ("diagnostics.solve_time_s = 'fast': a finite number in s",),
 }
 
 
