@@ -175,7 +175,8 @@ class ClosedLoopEngine(Engine):
         except GuidanceInputError:
             raise
         except Exception as exc:  # noqa: BLE001
-            raise GuidanceFailure(self.law_name, 0.0, f"setup() raised {type(exc).__name__}: {exc}") from exc
+            raise GuidanceFailure(self.law_name, 0.0, f"setup() raised {type(exc).__name__}: "
+                                  + " ".join(str(exc).split())) from exc
         try:  # guidance's own density belief, logged next to the truth density
             from guidance.density import DensityModel
 

@@ -72,6 +72,8 @@ class RaisingLaw:
         self.mission = mission
         self.fail_at_s = float(mission.settings.get("fail_at_s", 3 * mission.cycle_s))
         self.how = str(mission.settings.get("how", "raise"))
+        if self.how == "setup":
+            raise RuntimeError("no such thing\n(second line)")
 
     def _ok(self, t_s):
         cmds = {d.name: SpacecraftCommand(d.name, impulses=(Impulse(t_s + 5.0, np.array([0.0, 1e-3, 0.0])),))
@@ -228,6 +230,19 @@ def test_bad_law_fails_run_and_keeps_data(tmp_path, repo_root, fake_truth, how):
     # one commanded burn per deputy per good cycle, executed at its cycle
     assert np.allclose(sorted(log.get("commands/impulses/t_cmd_s")), np.repeat([5.0, cycle + 5.0, 2 * cycle + 5.0], 2))
     assert _str(log.get("commands/impulses/status")) == ["executed"] * 6
+
+
+def test_law_raising_in_setup_fails_run(tmp_path, repo_root, fake_truth, capsys):
+    from sim.cli import main
+
+    out = tmp_path / "s.h5"
+    code = main(["run", str(repo_root / "scenarios/demo_formation.toml"), "-o", str(out),
+                 "--set", f'guidance.law="{THIS}:RaisingLaw"', "--set", "guidance.settings.how=setup"])
+    err = capsys.readouterr().err
+    assert code == 1 and len(err.strip().splitlines()) == 1 and "Traceback" not in err, err
+    assert "setup() raised RuntimeError: no such thing (second line)" in err
+    log = read_log(out)
+    assert log.status == "failed" and "in setup" in log.get("meta/traceback")
 
 
 def test_bad_law_cli_exit_1_one_line(tmp_path, repo_root, fake_truth, capsys):
