@@ -7,13 +7,15 @@ checks fly the real Orekit truth for a fraction of a day (``@pytest.mark.orekit`
 Sources of the checks:
 - Gauss-Markov lag-1 autocorrelation ``exp(-dt/tau)`` and the stationary variance: Gelb (ed.),
   Applied Optimal Estimation, MIT Press 1974, ch. 4 [memory].
-- Sampling error of a sample standard deviation of n independent normals: about
-  ``sigma / sqrt(2 n)``; of a lag-1 autocorrelation estimate of an AR(1) process with coefficient
-  rho: ``sqrt((1 - rho^2) / n)`` (Bartlett 1946 [memory]); of a variance of an AR(1) process:
-  ``2 sigma^4 / n * (1 + rho^2) / (1 - rho^2)`` (Bartlett's formula summed over lags [memory]).
+- Sampling errors of correlated Gaussian series (Bartlett 1946 [memory]): variance of the mean
+  ``sigma^2 / N sum_k rho_k``, of the mean square ``2 sigma^4 / N sum_k rho_k^2`` (k over all
+  integers), and of a lag-h autocorrelation estimate
+  ``1/N sum_{k>=1} (rho_{k+h} + rho_{k-h} - 2 rho_h rho_k)^2``, with the model's autocorrelation
+  rho_k of white noise plus Gauss-Markov; of a sample standard deviation of n independent normals
+  ``sigma / sqrt(2 n)``.
 - Rayleigh distribution of the angle between two directions when the error has two independent
   normal components of 1-sigma s: mean ``s sqrt(pi / 2)``, variance ``(4 - pi) / 2 s^2``
-  (standard textbook result [memory]).
+  (standard textbook result [memory]); Kolmogorov-Smirnov test against its CDF (scipy.stats).
 - Rocket equation ``m_used = m (1 - exp(-dv / (Isp g0)))``, g0 = 9.80665 m/s^2 (CGPM 1901).
 - Everything else (failed-run contents, exit codes, reproducibility, what is logged): covey's own
   contract (common practice, no source).
