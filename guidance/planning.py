@@ -845,11 +845,15 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
             message = (f"the whole correction ({sol.cost:.3g} m/s) is below the minimum impulse "
                        f"bit ({dv_min:.3g} m/s): no impulse planned")
     restricted = False
+    rounded = None  # the first solution with small impulses, each raised to one minimum bit
     for k in range(max_min_bit_rounds):
         mag = np.linalg.norm(sol.dv, axis=1)
         small = np.nonzero((mag > TINY_DV_MPS) & (mag < dv_min))[0]
         if small.size == 0:
             break
+        if rounded is None:
+            rounded = (sol.dv.copy(), np.copy(sol.duty))
+            rounded[0][small] *= (dv_min / mag[small])[:, None]
         if k >= 2 and not restricted:
             # the small correction keeps moving to other candidates: allow only the burns that
             # are already large (their directions and sizes re-optimised), then shrink that set
@@ -869,6 +873,14 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
                        f"({dv_min:.3g} m/s) dropped; no plan without them reaches the target")
             break
         sol = trial
+    if rounded is not None and float(np.sum(np.linalg.norm(sol.dv, axis=1))) > \
+            float(np.sum(np.linalg.norm(rounded[0], axis=1))):
+        # moving the small corrections onto other (restricted) burns cost more than delivering
+        # each as one minimum impulse bit: fly those and report the (tiny) predicted miss
+        sol.dv, sol.duty = rounded
+        if status == "ok":
+            status, message = "degraded", (f"impulse(s) below the minimum impulse bit "
+                                           f"({dv_min:.3g} m/s) raised to it")
     mag = np.linalg.norm(sol.dv, axis=1)
     bad = (mag > TINY_DV_MPS) & (mag < dv_min)
     if np.any(bad):
