@@ -60,7 +60,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .dynamics import control_impulse, j2_coefficients, mean_arg_latitude, mean_motion, stm_j2, stm_kepler
+from .dynamics import (_leggauss, control_impulse, j2_coefficients, mean_arg_latitude, mean_motion, stm_j2,
+                       stm_kepler)
 
 try:  # HiGHS's own bindings (a dependency of covey); imported lazily for a clear error
     import highspy as _highspy
@@ -183,6 +184,31 @@ def segment_grid(t_anchor_s, t_from_s, t_to_s, period_s, per_orbit):
 # --------------------------------------------------------------------------------------------
 
 
+_MEMO: dict = {}
+_MEMO_SIZE = 16
+
+
+def _memo_key(name, chief_oe, arrays, *scalars):
+    parts = [name, np.asarray(chief_oe, dtype=float).tobytes()]
+    for a in arrays:
+        a = np.asarray(a, dtype=float)
+        parts.append((a.shape, a.tobytes()))
+    return tuple(parts) + scalars
+
+
+def _memo(key, compute):
+    """The last few results of the matrix builders below, by exact input (a re-plan and its
+    realisation rounds ask for the same matrices several times). Returned read-only."""
+    hit = _MEMO.get(key)
+    if hit is None:
+        hit = compute()
+        hit.flags.writeable = False
+        if len(_MEMO) >= _MEMO_SIZE:
+            _MEMO.pop(next(iter(_MEMO)))
+        _MEMO[key] = hit
+    return hit
+
+
 def impulse_matrices(chief_oe, t_burn_s, tf_s, t_ref_s, stm="j2"):
     """Effect on the dimensionless ROE at ``tf_s`` of unit RTN impulses at ``t_burn_s``.
 
@@ -204,6 +230,11 @@ def impulse_matrices(chief_oe, t_burn_s, tf_s, t_ref_s, stm="j2"):
     t = np.atleast_1d(np.asarray(t_burn_s, dtype=float))
     if t.size == 0:
         return np.zeros((0, 6, 3))
+    key = _memo_key("imp", chief_oe, (t, tf_s), float(t_ref_s), stm)
+    return _memo(key, lambda: _impulse_matrices(chief_oe, t, tf_s, t_ref_s, stm))
+
+
+def _impulse_matrices(chief_oe, t, tf_s, t_ref_s, stm):
     a = float(chief_oe[0])
     u = mean_arg_latitude(chief_oe, t, t_ref_s)
     Phi = STM_MODELS[stm](chief_oe, np.broadcast_to(np.asarray(tf_s, dtype=float), t.shape) - t)
@@ -229,10 +260,15 @@ def drag_matrices(chief_oe, s0_s, s1_s, tf_s, t_ref_s, stm="j2", n_quad=8):
     """
     s0 = np.atleast_1d(np.asarray(s0_s, dtype=float))
     s1 = np.atleast_1d(np.asarray(s1_s, dtype=float))
+    if s0.size == 0:
+        return np.zeros((0, 6))
+    key = _memo_key("drag", chief_oe, (s0, s1, tf_s), float(t_ref_s), stm, int(n_quad))
+    return _memo(key, lambda: _drag_matrices(chief_oe, s0, s1, tf_s, t_ref_s, stm, n_quad))
+
+
+def _drag_matrices(chief_oe, s0, s1, tf_s, t_ref_s, stm, n_quad):
     tf = np.broadcast_to(np.asarray(tf_s, dtype=float), s0.shape)
     out = np.zeros((s0.size, 6))
-    if s0.size == 0:
-        return out
     a = float(chief_oe[0])
     period = 2 * np.pi / float(mean_motion(a))
     span = s1 - s0
@@ -241,7 +277,7 @@ def drag_matrices(chief_oe, s0_s, s1_s, tf_s, t_ref_s, stm="j2", n_quad=8):
         sel = np.nonzero((m_nodes == m) & (span > 0))[0]
         if sel.size == 0:
             continue
-        x, w = np.polynomial.legendre.leggauss(int(m))
+        x, w = _leggauss(int(m))
         tau = s0[sel, None] + 0.5 * (x + 1.0)[None, :] * span[sel, None]  # (k, m)
         u = mean_arg_latitude(chief_oe, tau.ravel(), t_ref_s)
         bT = control_impulse(a, u).reshape(-1, 6, 3)[:, :, 1]  # (k*m, 6)
@@ -357,6 +393,7 @@ class MinFuelProgram:
         self._nrow = 6
         self._col_burn: list[int] = []
         self._col_dir: list[np.ndarray] = []
+        self._col_arrays = None
         self._cols_of: dict[int, list[int]] = {}
         self._cap_row = -np.ones(self.J, dtype=np.int64)
         # starting columns: warm ones, then +-R, +-T, +-N at a few burns spread over the horizon
@@ -406,18 +443,23 @@ class MinFuelProgram:
                 self._nrow += 1
         dirs = np.array([d for _, d in cols])
         vals = np.einsum("mik,mk->mi", self.G[js], dirs)
-        starts, ind, val = [], [], []
-        for k, j in enumerate(js):
-            starts.append(len(ind))
-            ind.extend(range(6))
-            val.extend(vals[k])
-            if self._cap_row[j] >= 0:
-                ind.append(int(self._cap_row[j]))
-                val.append(1.0)
+        # column k: rows 0..5 with vals[k], then its capacity row (if any) with 1
+        cap = self._cap_row[js]
+        has = cap >= 0
         m = js.size
+        width = 6 + has.astype(np.int64)
+        starts = np.concatenate([[0], np.cumsum(width)[:-1]]).astype(np.int32)
+        ind = np.empty((m, 7), dtype=np.int32)
+        val = np.empty((m, 7))
+        ind[:, :6] = np.arange(6, dtype=np.int32)
+        val[:, :6] = vals
+        ind[:, 6] = cap
+        val[:, 6] = 1.0
+        keep = np.ones((m, 7), dtype=bool)
+        keep[:, 6] = has
+        ind, val = ind[keep], val[keep]
         ub = np.where(self.excluded[js], 0.0, self.D[js])
-        h.addCols(m, np.ones(m), np.zeros(m), ub, len(ind), np.array(starts, dtype=np.int32),
-                  np.array(ind, dtype=np.int32), np.array(val))
+        h.addCols(m, np.ones(m), np.zeros(m), ub, int(ind.size), starts, ind, val)
         base = self._first_burn_col + len(self._col_burn)
         for k, (j, d) in enumerate(cols):
             self._col_burn.append(j)
@@ -440,12 +482,13 @@ class MinFuelProgram:
         c = self.H @ lam
         return A, f, c
 
-    def lower_bound(self, lam):
+    def lower_bound(self, lam, _prices=None):
         """Dual value ``q(lam)`` (clipped to the soft-row box): a certified lower bound, m/s."""
         lam = np.asarray(lam, dtype=float)
         if self.soft is not None:
             lam = np.clip(lam, -self.soft, self.soft)
-        _, f, c = self._prices(lam)
+            _prices = None
+        _, f, c = self._prices(lam) if _prices is None else _prices
         D = np.where(self.excluded, 0.0, self.D)
         # an excluded burn has no capacity: its term is -0 * (f - 1)_+ ... but a zero-capacity
         # column still constrains nothing, so the bound stays valid
@@ -489,7 +532,7 @@ class MinFuelProgram:
             y = np.asarray(sol.row_dual)
             lam = y[:6].copy()
             A, f, c = self._prices(lam)
-            lb = self.lower_bound(lam)
+            lb = self.lower_bound(lam, (A, f, c))
             if lb > best_lb:
                 best_lb, best_lam = lb, lam
             art = x[:6] + x[6:12]
@@ -546,7 +589,11 @@ class MinFuelProgram:
         dv = np.zeros((self.J, 3))
         if self._col_burn:
             xb = np.clip(x[self._first_burn_col:], 0.0, None)
-            np.add.at(dv, np.array(self._col_burn), xb[:, None] * np.array(self._col_dir))
+            n = len(self._col_burn)
+            if self._col_arrays is None or self._col_arrays[0].size != n:
+                self._col_arrays = (np.array(self._col_burn), np.array(self._col_dir))
+            burn, dirs = self._col_arrays
+            np.add.at(dv, burn, xb[:, None] * dirs)
             # the capacity rows guarantee sum(mu) <= D; clip round-off so |dv| <= D exactly
             nrm = np.linalg.norm(dv, axis=1)
             over = nrm > self.D
