@@ -21,6 +21,8 @@ import platform
 import subprocess
 import time
 import traceback as _traceback
+from collections import deque
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from types import SimpleNamespace
@@ -140,6 +142,12 @@ class RunSummary:
         if self.reason:
             txt += f" ({self.reason})"
         return txt + f" -> {self.path}"
+
+POST_THREAD = True
+"""Post-process the truth samples (the judge's Eckstein-Hechler mean elements, the logged
+density) on one worker thread, overlapped with the next cycle. The results are the same either
+way; Orekit's Java code releases the GIL, so on a machine with a free core this takes that work
+off the loop's critical path (DEVELOPERS.md ``truth``, closed-loop cost)."""
 
 LOG_WRITE_SIM_S = 86400.0
 """The engine's log buffer is written to the HDF5 file after at most this much simulated time, s."""
@@ -266,6 +274,16 @@ class Engine:
         self.rec = rec if isinstance(rec, BufferedLog) else BufferedLog(rec)
         self._log_written_t_s = 0.0
         self._log_written_wall = time.perf_counter()
+        # post-processing of samples (judge mean elements, logged density) on a worker thread
+        self._jobs: deque = deque()
+        self._pool: ThreadPoolExecutor | None = None
+        self._deferred_density = False
+        if POST_THREAD:
+            self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="covey-post")
+            defer = getattr(world, "defer_sample_density", None)
+            if callable(defer) and callable(getattr(world, "sample_density_kgpm3", None)):
+                defer(True)
+                self._deferred_density = True
         self.progress = progress
         self.names: tuple[str, ...] = tuple(world.names)
         self.chief = self.names[0]
@@ -335,20 +353,72 @@ class Engine:
     # -- recording ---------------------------------------------------------------------------
     def record_interval(self) -> None:
         """Drain the truth world's buffers into the log: samples (+ mean elements and mean ROE),
-        executed impulses, events."""
+        executed impulses, events.
+
+        With the post-processing thread (:data:`POST_THREAD`) the samples' Java-side work (the
+        judge's Eckstein-Hechler mean elements, and the logged density when the world can defer
+        it) runs on that thread while the engine goes on with the next cycle; the rows of an
+        interval are logged when the next interval is recorded (or at :meth:`flush_log`), in the
+        same order and with the same values as without the thread.
+        """
         samples = self.world.drain_samples()
+        if self._pool is None:
+            self._record_samples(samples, self._post_process(samples))
+        else:
+            self._jobs.append((samples, self._pool.submit(self._post_process, samples)))
+            self._collect(keep=1)
+        imps = self.world.drain_executed_impulses()
+        if imps:
+            cols = {k: [] for k in imps[0]}
+            for imp in imps:
+                for k in cols:
+                    cols[k].append(imp.get(k))
+                self.dv_total[imp["name"]] = self.dv_total.get(imp["name"], 0.0) + float(
+                    np.linalg.norm(imp["dv_rtn_mps"]))
+            self.rec.append("maneuvers", **{k: np.asarray(v) for k, v in cols.items()})
+        events = self.world.drain_events()
+        if events:
+            self.rec.append("events", t_s=[float(e["t_s"]) for e in events],
+                            name=[str(e.get("name", "")) for e in events],
+                            kind=[str(e.get("kind", "")) for e in events],
+                            detail=[str(e.get("detail", "")) for e in events])
+        now = time.perf_counter()
+        if (self.t_s - self._log_written_t_s >= LOG_WRITE_SIM_S - 1e-6
+                or now - self._log_written_wall >= LOG_WRITE_WALL_S):
+            self.flush_log()
+
+    def _post_process(self, samples: dict) -> dict:
+        """The samples' Java-side work: name -> (density or None, mean elements (K, 6)).
+        Runs on the post-processing thread (or inline); reads only its arguments and the
+        world's thread-safe :meth:`sample_density_kgpm3`."""
+        out = {}
+        for name in self.names:
+            s = samples.get(name)
+            if not s or len(s["t_s"]) == 0:
+                continue
+            t = np.asarray(s["t_s"], dtype=float)
+            rho = None
+            if self._deferred_density:
+                rho = np.asarray(self.world.sample_density_kgpm3(t, s["r_eci_m"]), dtype=float)
+            mean = np.asarray(self.api.mean_elements(t, s["r_eci_m"], s["v_eci_mps"],
+                                                     self.cfg.epoch_utc), dtype=float)
+            out[name] = (rho, mean)
+        return out
+
+    def _record_samples(self, samples: dict, processed: dict) -> None:
         chief_mean = None
         chief_t = None
         for name in self.names:
             s = samples.get(name)
             if not s or len(s["t_s"]) == 0:
                 continue
+            rho, mean = processed[name]
+            if rho is not None:
+                s = dict(s, density_kgpm3=rho)
             modes = list(self.world.mode_names(name))
             self.rec.append(f"spacecraft/{name}/truth",
                             attrs={"mode_index": {"mode_names": modes}}, **s)
             t = np.asarray(s["t_s"], dtype=float)
-            mean = np.asarray(self.api.mean_elements(t, s["r_eci_m"], s["v_eci_mps"],
-                                                     self.cfg.epoch_utc), dtype=float)
             oe = {"a_m": mean[:, 0], "ex": mean[:, 1], "ey": mean[:, 2],
                   "i_deg": np.degrees(mean[:, 3]), "raan_deg": np.degrees(mean[:, 4]) % 360.0,
                   "u_deg": np.degrees(mean[:, 5]) % 360.0}
@@ -370,32 +440,30 @@ class Engine:
                             mean_roe_m=roe)
             self.final_roe[name] = roe[-1]
 
-        imps = self.world.drain_executed_impulses()
-        if imps:
-            cols = {k: [] for k in imps[0]}
-            for imp in imps:
-                for k in cols:
-                    cols[k].append(imp.get(k))
-                self.dv_total[imp["name"]] = self.dv_total.get(imp["name"], 0.0) + float(
-                    np.linalg.norm(imp["dv_rtn_mps"]))
-            self.rec.append("maneuvers", **{k: np.asarray(v) for k, v in cols.items()})
-        events = self.world.drain_events()
-        if events:
-            self.rec.append("events", t_s=[float(e["t_s"]) for e in events],
-                            name=[str(e.get("name", "")) for e in events],
-                            kind=[str(e.get("kind", "")) for e in events],
-                            detail=[str(e.get("detail", "")) for e in events])
-        now = time.perf_counter()
-        if (self.t_s - self._log_written_t_s >= LOG_WRITE_SIM_S - 1e-6
-                or now - self._log_written_wall >= LOG_WRITE_WALL_S):
-            self.flush_log()
+    def _collect(self, keep: int = 0) -> None:
+        """Log the post-processed intervals in order: every finished one, and wait for the
+        oldest until at most ``keep`` are in flight. A failed job raises here (after the
+        intervals before it are logged)."""
+        while self._jobs and (len(self._jobs) > keep or self._jobs[0][1].done()):
+            samples, fut = self._jobs[0]
+            result = fut.result()
+            self._jobs.popleft()
+            self._record_samples(samples, result)
 
     def flush_log(self) -> None:
-        """Write the buffered log rows to the file and flush it (also done at least every
-        :data:`LOG_WRITE_SIM_S` simulated or :data:`LOG_WRITE_WALL_S` wall-clock seconds)."""
+        """Log every interval still being post-processed, write the buffered log rows to the
+        file and flush it (also done at least every :data:`LOG_WRITE_SIM_S` simulated or
+        :data:`LOG_WRITE_WALL_S` wall-clock seconds)."""
+        self._collect(keep=0)
         self.rec.flush()
         self._log_written_t_s = self.t_s
         self._log_written_wall = time.perf_counter()
+
+    def close(self) -> None:
+        """Stop the post-processing thread (after its queued work; idempotent)."""
+        if self._pool is not None:
+            self._pool.shutdown(wait=True)
+            self._pool = None
 
 
 def _config_json(cfg: RunConfig) -> str:
@@ -509,11 +577,17 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
                 engine.record_interval()
             except Exception:  # noqa: BLE001
                 pass
+            try:  # and the intervals still being post-processed
+                engine.flush_log()
+            except Exception:  # noqa: BLE001
+                pass
         try:  # rows buffered by the engine
             log.write()
         except Exception:  # noqa: BLE001
             pass
     finally:
+        if engine is not None:
+            engine.close()
         wall = time.perf_counter() - wall0
         try:
             rec.write_attrs("meta", wall_time_s=wall,
