@@ -26,8 +26,8 @@ reasons, each bounded separately:
    :func:`drag_mismatch_miss` integrates the logged difference (truth forces from the logged
    density, area, mass and state; minus guidance's planned acceleration with the flown areas)
    through Gauss's variational equations for near-circular orbits in ROE form (impulsive form
-   in D'Amico, Autonomous Formation Flying in Low Earth Orbit, PhD thesis, TU Delft 2010, ch. 2
-   [memory]) plus the secular J2 couplings that matter over days: along-track drift
+   as in Gaias et al., "Impulsive Maneuvers for Formation Reconfiguration Using Relative
+   Orbital Elements", JGCD 38(6), 2015) plus the secular J2 couplings that matter over days: along-track drift
    ``-3/2 n a da``, rotation of the relative e vector at the apsidal rate, differential nodal
    drift ``-7/2 Omega_dot sin(i) a da - Omega_dot sin(i) tan(i) a dix`` (standard secular J2
    rates, Vallado, Fundamentals of Astrodynamics and Applications, 4th ed. [memory]).
@@ -211,7 +211,7 @@ def drag_mismatch_miss(fl: Flown, deputy: str, t_plan_s: float, t_end_s: float) 
     sel = (t >= t_plan_s - 1e-6) & (t <= t_end_s + 1e-6)
     t, f, u = t[sel], f[sel], u[sel]
     su, cu = np.sin(u), np.cos(u)
-    # Gauss, near-circular, a-scaled ROE rates per unit force (D'Amico 2010 [memory])
+    # Gauss, near-circular, a-scaled ROE rates per unit force (Gaias et al., JGCD 38(6), 2015)
     b = np.stack([2 * f[:, 1], -2 * f[:, 0], su * f[:, 0] + 2 * cu * f[:, 1],
                   -cu * f[:, 0] + 2 * su * f[:, 1], cu * f[:, 2], su * f[:, 2]], axis=1) / n
     A = np.zeros((6, 6))
@@ -354,8 +354,8 @@ def remaining_dv_allowance(fl: Flown, deputy: str) -> tuple[np.ndarray, np.ndarr
     With perfect navigation the previous plan's remainder plus a correction of the deviation
     ``dx = estimate(t_k) - previous prediction(t_k)`` (model error only) is a feasible plan, so the
     new optimum can exceed the old remainder by at most the cost of that correction, flown at once
-    with pairs of burns half an orbit apart (minimum-dv values of Gauss's equations, D'Amico 2010
-    [memory]): ``n/2 |a da| + n/2 |a de| + n |a di| + |a dlambda| / (1.5 T_left)``; plus the
+    with pairs of burns half an orbit apart (minimum-dv values of Gauss's equations, Gaias et al.,
+    JGCD 38(6), 2015): ``n/2 |a da| + n/2 |a de| + n |a di| + |a dlambda| / (1.5 T_left)``; plus the
     planner's relative optimality gap 1e-5 on both plans (guidance-laws section) and two minimum
     impulse bits (a sub-bit correction is raised to one bit, guidance.planning.plan_deputy).
     """
@@ -487,8 +487,8 @@ def test_realistic_spread_resolve_dv_within_10pct_of_single_and_below_propulsion
 @pytest.mark.orekit
 def test_realistic_pair_formation_is_passive_safe_after_the_deadline(pair_real):
     """With parallel relative e and i vectors the radial/normal separation never drops below
-    min(a de, a di) (D'Amico & Montenbruck, Proximity operations of formation-flying spacecraft
-    using an eccentricity/inclination vector separation, JGCD 29(3), 2006 [memory]); the target is
+    min(a de, a di) ("Proximity operations of formation-flying spacecraft
+    using an eccentricity/inclination vector separation", JGCD 29(3), 2006 [memory]); the target is
     300 m each. After the deadline both spacecraft hold the same attitude; allowed: the final e/i
     error of the re-solve (within 10 m, checked) and the J2 rotation of the e vector over the
     remaining half day (3.5 deg/day at 500 km SSO: 300 m x (1 - cos 1.8 deg) < 1 m)."""
