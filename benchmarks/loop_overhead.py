@@ -112,8 +112,7 @@ def install_timers() -> None:
         setattr(recorder.RunRecorder, name, _timed("logging (HDF5)", getattr(recorder.RunRecorder, name)))
     for name in ("append", "write"):
         setattr(run.BufferedLog, name, _timed("logging (HDF5)", getattr(run.BufferedLog, name)))
-    T.sample_density_kgpm3 = _timed("logged density (deferred)", T.sample_density_kgpm3)
-    Future.result = _timed("waiting for the post-processing thread", Future.result)
+    Future.result = _timed("waiting for the log-writer thread", Future.result)
     run.run_metrics = _timed("metrics", run.run_metrics)
     eng.ClosedLoopEngine.finish = _timed("finish (believed density)", eng.ClosedLoopEngine.finish)
 
@@ -205,12 +204,12 @@ def main() -> None:
     ap.add_argument("--profile", default=None, help="write a cProfile of the closed loop here")
     ap.add_argument("--keep-log", default=None, help="keep the closed-loop run log at this path")
     ap.add_argument("--no-thread", action="store_true",
-                    help="post-process the samples on the main thread (sim.run.POST_THREAD = False)")
+                    help="write the log on the main thread (sim.run.LOG_THREAD = False)")
     args = ap.parse_args()
     if args.no_thread:
         import sim.run
 
-        sim.run.POST_THREAD = False
+        sim.run.LOG_THREAD = False
 
     from sim.orekit_boot import boot
 
@@ -251,13 +250,13 @@ def main() -> None:
     guid = timers.get("guidance (law.step)", 0.0)
     print(f"closed loop, run_scenario wall time          : {wall:.2f} s "
           f"= {wall / (n_sc * args.days):.3f} s per spacecraft-day "
-          f"(post-processing thread: {'on' if sim.run.POST_THREAD else 'off'})")
+          f"(log-writer thread: {'on' if sim.run.LOG_THREAD else 'off'})")
     print(f"RATIO closed loop / bare                     : {wall / bare:.3f}  (target <= 1.2)")
     print(f"  without the guidance law's own time         : {(wall - guid) / bare:.3f}  "
           f"(law.step {guid:.2f} s = {guid / bare:.3f} x bare)")
     print(f"  process CPU time, closed loop / bare        : {cpu:.2f} / {bare_cpu:.2f} s = {cpu / bare_cpu:.3f} "
           f"(all threads, JVM included)")
-    print("where the closed-loop wall time goes (s, share, calls; [worker] = on the post-processing "
+    print("where the closed-loop wall time goes (s, share, calls; [worker] = on the log-writer "
           "thread, overlapped with the main thread):")
     main_keys = [k for k in timers if not k.startswith("  ") and not k.startswith("[worker]")]
     top = sum(timers[k] for k in main_keys)

@@ -21,7 +21,6 @@ import platform
 import subprocess
 import time
 import traceback as _traceback
-from collections import deque
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -143,11 +142,9 @@ class RunSummary:
             txt += f" ({self.reason})"
         return txt + f" -> {self.path}"
 
-POST_THREAD = True
-"""Post-process the truth samples (the judge's Eckstein-Hechler mean elements, the logged
-density) on one worker thread, overlapped with the next cycle. The results are the same either
-way; Orekit's Java code releases the GIL, so on a machine with a free core this takes that work
-off the loop's critical path (DEVELOPERS.md ``truth``, closed-loop cost)."""
+LOG_THREAD = True
+"""Compress and write the engine's buffered log rows on one writer thread (h5py releases the
+GIL while it does), overlapped with the loop; the file is the same either way."""
 
 LOG_WRITE_SIM_S = 86400.0
 """The engine's log buffer is written to the HDF5 file after at most this much simulated time, s."""
@@ -162,7 +159,8 @@ class BufferedLog:
 
     One h5py append costs about 0.3-1 ms whatever its size (resize, selection, chunk
     read-modify-write of a compressed chunk); a closed-loop cycle makes about a hundred small
-    ones. Buffered, the rows of many cycles go to each dataset in one call. The file's content is
+    ones. Buffered, the rows of many cycles go to each dataset in one call (written on the
+    engine's log-writer thread, :meth:`write_async`, when it has one). The file's content is
     the same as with direct appends: the same datasets, rows, dtypes (a dataset's dtype is that of
     its first rows, as with the recorder), units and attributes. Everything else (``file``,
     ``write_dataset``, ``write_attrs``, ``flush``, ``close``, ...) writes the pending rows first and
@@ -173,6 +171,7 @@ class BufferedLog:
         self.rec = rec
         self._pending: dict[str, list[tuple[Any, Any, dict[str, np.ndarray]]]] = {}
         self.n_pending = 0
+        self._inflight = None
 
     def append(self, group_path: str, units=None, attrs=None, **arrays: Any) -> None:
         """Queue rows for :meth:`RunRecorder.append` (same arguments; checked here: the same row
@@ -200,8 +199,32 @@ class BufferedLog:
         self.n_pending += 1
 
     def write(self) -> None:
-        """Append every queued row to the file (one append per group and run of equal keys)."""
+        """Append every queued row to the file (one append per group and run of equal keys),
+        after any :meth:`write_async` still running."""
+        self.wait()
         pending, self._pending, self.n_pending = self._pending, {}, 0
+        self._write(pending)
+
+    def write_async(self, executor) -> None:
+        """Hand the queued rows to ``executor`` (one worker thread) to be appended and flushed
+        there, while the caller goes on queueing; h5py releases the GIL while it compresses and
+        writes. Any other use of the file waits for it first (:meth:`wait`)."""
+        self.wait()
+        pending, self._pending, self.n_pending = self._pending, {}, 0
+
+        def job():
+            self._write(pending)
+            self.rec.flush()
+
+        self._inflight = executor.submit(job)
+
+    def wait(self) -> None:
+        """Wait for a :meth:`write_async` (its error, if any, is raised here)."""
+        fut, self._inflight = self._inflight, None
+        if fut is not None:
+            fut.result()
+
+    def _write(self, pending) -> None:
         f = self.rec.file
         for group, queue in pending.items():
             k = 0
@@ -274,16 +297,9 @@ class Engine:
         self.rec = rec if isinstance(rec, BufferedLog) else BufferedLog(rec)
         self._log_written_t_s = 0.0
         self._log_written_wall = time.perf_counter()
-        # post-processing of samples (judge mean elements, logged density) on a worker thread
-        self._jobs: deque = deque()
-        self._pool: ThreadPoolExecutor | None = None
-        self._deferred_density = False
-        if POST_THREAD:
-            self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="covey-post")
-            defer = getattr(world, "defer_sample_density", None)
-            if callable(defer) and callable(getattr(world, "sample_density_kgpm3", None)):
-                defer(True)
-                self._deferred_density = True
+        # HDF5 compression and writing of the buffered rows on a thread of its own
+        self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="covey-log") \
+            if LOG_THREAD else None
         self.progress = progress
         self.names: tuple[str, ...] = tuple(world.names)
         self.chief = self.names[0]
@@ -353,72 +369,20 @@ class Engine:
     # -- recording ---------------------------------------------------------------------------
     def record_interval(self) -> None:
         """Drain the truth world's buffers into the log: samples (+ mean elements and mean ROE),
-        executed impulses, events.
-
-        With the post-processing thread (:data:`POST_THREAD`) the samples' Java-side work (the
-        judge's Eckstein-Hechler mean elements, and the logged density when the world can defer
-        it) runs on that thread while the engine goes on with the next cycle; the rows of an
-        interval are logged when the next interval is recorded (or at :meth:`flush_log`), in the
-        same order and with the same values as without the thread.
-        """
+        executed impulses, events."""
         samples = self.world.drain_samples()
-        if self._pool is None:
-            self._record_samples(samples, self._post_process(samples))
-        else:
-            self._jobs.append((samples, self._pool.submit(self._post_process, samples)))
-            self._collect(keep=1)
-        imps = self.world.drain_executed_impulses()
-        if imps:
-            cols = {k: [] for k in imps[0]}
-            for imp in imps:
-                for k in cols:
-                    cols[k].append(imp.get(k))
-                self.dv_total[imp["name"]] = self.dv_total.get(imp["name"], 0.0) + float(
-                    np.linalg.norm(imp["dv_rtn_mps"]))
-            self.rec.append("maneuvers", **{k: np.asarray(v) for k, v in cols.items()})
-        events = self.world.drain_events()
-        if events:
-            self.rec.append("events", t_s=[float(e["t_s"]) for e in events],
-                            name=[str(e.get("name", "")) for e in events],
-                            kind=[str(e.get("kind", "")) for e in events],
-                            detail=[str(e.get("detail", "")) for e in events])
-        now = time.perf_counter()
-        if (self.t_s - self._log_written_t_s >= LOG_WRITE_SIM_S - 1e-6
-                or now - self._log_written_wall >= LOG_WRITE_WALL_S):
-            self.flush_log()
-
-    def _post_process(self, samples: dict) -> dict:
-        """The samples' Java-side work: name -> (density or None, mean elements (K, 6)).
-        Runs on the post-processing thread (or inline); reads only its arguments and the
-        world's thread-safe :meth:`sample_density_kgpm3`."""
-        out = {}
-        for name in self.names:
-            s = samples.get(name)
-            if not s or len(s["t_s"]) == 0:
-                continue
-            t = np.asarray(s["t_s"], dtype=float)
-            rho = None
-            if self._deferred_density:
-                rho = np.asarray(self.world.sample_density_kgpm3(t, s["r_eci_m"]), dtype=float)
-            mean = np.asarray(self.api.mean_elements(t, s["r_eci_m"], s["v_eci_mps"],
-                                                     self.cfg.epoch_utc), dtype=float)
-            out[name] = (rho, mean)
-        return out
-
-    def _record_samples(self, samples: dict, processed: dict) -> None:
         chief_mean = None
         chief_t = None
         for name in self.names:
             s = samples.get(name)
             if not s or len(s["t_s"]) == 0:
                 continue
-            rho, mean = processed[name]
-            if rho is not None:
-                s = dict(s, density_kgpm3=rho)
             modes = list(self.world.mode_names(name))
             self.rec.append(f"spacecraft/{name}/truth",
                             attrs={"mode_index": {"mode_names": modes}}, **s)
             t = np.asarray(s["t_s"], dtype=float)
+            mean = np.asarray(self.api.mean_elements(t, s["r_eci_m"], s["v_eci_mps"],
+                                                     self.cfg.epoch_utc), dtype=float)
             oe = {"a_m": mean[:, 0], "ex": mean[:, 1], "ey": mean[:, 2],
                   "i_deg": np.degrees(mean[:, 3]), "raan_deg": np.degrees(mean[:, 4]) % 360.0,
                   "u_deg": np.degrees(mean[:, 5]) % 360.0}
@@ -440,30 +404,47 @@ class Engine:
                             mean_roe_m=roe)
             self.final_roe[name] = roe[-1]
 
-    def _collect(self, keep: int = 0) -> None:
-        """Log the post-processed intervals in order: every finished one, and wait for the
-        oldest until at most ``keep`` are in flight. A failed job raises here (after the
-        intervals before it are logged)."""
-        while self._jobs and (len(self._jobs) > keep or self._jobs[0][1].done()):
-            samples, fut = self._jobs[0]
-            result = fut.result()
-            self._jobs.popleft()
-            self._record_samples(samples, result)
+        imps = self.world.drain_executed_impulses()
+        if imps:
+            cols = {k: [] for k in imps[0]}
+            for imp in imps:
+                for k in cols:
+                    cols[k].append(imp.get(k))
+                self.dv_total[imp["name"]] = self.dv_total.get(imp["name"], 0.0) + float(
+                    np.linalg.norm(imp["dv_rtn_mps"]))
+            self.rec.append("maneuvers", **{k: np.asarray(v) for k, v in cols.items()})
+        events = self.world.drain_events()
+        if events:
+            self.rec.append("events", t_s=[float(e["t_s"]) for e in events],
+                            name=[str(e.get("name", "")) for e in events],
+                            kind=[str(e.get("kind", "")) for e in events],
+                            detail=[str(e.get("detail", "")) for e in events])
+        now = time.perf_counter()
+        if (self.t_s - self._log_written_t_s >= LOG_WRITE_SIM_S - 1e-6
+                or now - self._log_written_wall >= LOG_WRITE_WALL_S):
+            if self._pool is None:
+                self.rec.flush()
+            else:  # compressed and written on the writer thread
+                self.rec.write_async(self._pool)
+            self._log_written_t_s = self.t_s
+            self._log_written_wall = now
 
     def flush_log(self) -> None:
-        """Log every interval still being post-processed, write the buffered log rows to the
-        file and flush it (also done at least every :data:`LOG_WRITE_SIM_S` simulated or
-        :data:`LOG_WRITE_WALL_S` wall-clock seconds)."""
-        self._collect(keep=0)
+        """Write the buffered log rows to the file and flush it (also done at least every
+        :data:`LOG_WRITE_SIM_S` simulated or :data:`LOG_WRITE_WALL_S` wall-clock seconds)."""
         self.rec.flush()
         self._log_written_t_s = self.t_s
         self._log_written_wall = time.perf_counter()
 
     def close(self) -> None:
-        """Stop the post-processing thread (after its queued work; idempotent)."""
+        """Stop the log-writer thread (after its queued work; idempotent)."""
         if self._pool is not None:
             self._pool.shutdown(wait=True)
             self._pool = None
+            try:
+                self.rec.wait()
+            except Exception:  # noqa: BLE001 - raised already by flush_log, or the run failed
+                pass
 
 
 def _config_json(cfg: RunConfig) -> str:
@@ -577,7 +558,7 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
                 engine.record_interval()
             except Exception:  # noqa: BLE001
                 pass
-            try:  # and the intervals still being post-processed
+            try:  # and the rows still buffered or being written
                 engine.flush_log()
             except Exception:  # noqa: BLE001
                 pass

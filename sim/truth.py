@@ -243,12 +243,7 @@ def _make_sampler(world: "TruthWorld", craft: _Craft):
                     arraycopy(tmp, 0, buf, 6 * n, 6)
                     tt.append(k * h)
                     mm.append(s.getMass())
-                    if atm is None:
-                        rho.append(0.0)
-                    elif craft.world._defer_density:
-                        rho.append(math.nan)  # TruthWorld.sample_density_kgpm3 fills it in later
-                    else:
-                        rho.append(atm.getDensity(date, s.getPosition(), gcrf))
+                    rho.append(atm.getDensity(date, s.getPosition(), gcrf) if atm is not None else 0.0)
                     k += 1
                     n += 1
                 craft.next_k = k
@@ -329,8 +324,6 @@ class TruthWorld:
         self._stopped: str | None = None
         self._events: list[dict] = []
         self._tod_cache: dict[int, tuple[np.ndarray, np.ndarray]] = {}
-        self._defer_density = False
-        self._density_atm = None
         self._init_density_error()
         names = [sc.name for sc in run.spacecraft]
         if len(set(names)) != len(names):
@@ -417,55 +410,6 @@ class TruthWorld:
             x[k] = phi * x[k - 1] + q * w[k]
         self._rho_t = np.arange(n) * dt
         self._rho_f = np.maximum(0.0, 1.0 + de.bias + x)
-
-    def defer_sample_density(self, defer: bool = True) -> None:
-        """Leave the model density out of the samples (``density_kgpm3`` is then NaN where an
-        atmosphere exists), to be computed later with :meth:`sample_density_kgpm3`, e.g. on a
-        worker thread while the next interval is propagated (the density call is about two thirds
-        of a sample's cost; see DEVELOPERS.md ``truth``)."""
-        self._defer_density = bool(defer)
-        if self._defer_density and self.forces.atmosphere is not None and self._density_atm is None:
-            # an atmosphere of its own (same model and data), so that another thread can use it
-            # while the propagators use theirs
-            keep = self.forces.space_weather
-            try:
-                self._density_atm = self.forces._build_atmosphere()
-            finally:
-                self.forces.space_weather = keep
-
-    def sample_density_kgpm3(self, t_s, r_eci_m) -> np.ndarray:
-        """Truth local density at sample positions, including the density scale error, kg/m^3.
-
-        The same model and data as the truth's drag (a separate instance, safe to use from
-        another thread while :meth:`advance_to` runs), at TOD positions instead of GCRF ones: equal
-        to the density the samples carry when not deferred within 3.4e-13 relative (measured on
-        the demo scenario; the TOD rotation of the samples is interpolated to 1.6e-6 m).
-
-        Parameters
-        ----------
-        t_s : array_like, shape (K,)
-        r_eci_m : array_like, shape (K, 3)
-            Positions in covey's ECI (TOD), m.
-
-        Returns
-        -------
-        np.ndarray, shape (K,)
-            Zero without an atmosphere.
-        """
-        from org.hipparchus.geometry.euclidean.threed import Vector3D
-
-        t = np.atleast_1d(np.asarray(t_s, dtype=float))
-        r = np.asarray(r_eci_m, dtype=float).reshape(-1, 3)
-        if t.size == 0 or self.forces.atmosphere is None:
-            return np.zeros(t.size)
-        atm = self._density_atm if self._density_atm is not None else self.forces.atmosphere
-        f = self.forces
-        epoch, tod = f.epoch, f.tod
-        rho = np.empty(t.size)
-        for k in range(t.size):
-            rho[k] = atm.getDensity(epoch.shiftedBy(float(t[k])),
-                                    Vector3D(float(r[k, 0]), float(r[k, 1]), float(r[k, 2])), tod)
-        return rho * self.density_scale(t)
 
     def density_scale(self, t_s) -> float | np.ndarray:
         """Truth density scale error ``max(0, 1 + bias + GM(t))`` in effect at ``t_s`` (1 when off).
@@ -872,8 +816,7 @@ class TruthWorld:
         dict
             name -> ``t_s`` (K,), ``r_eci_m`` (K, 3) and ``v_eci_mps`` (K, 3) in TOD, ``mass_kg``
             (K,), ``mode_index`` (K,) int (commanded mode, index in :meth:`mode_names`),
-            ``density_kgpm3`` (K,) truth local density including the density scale error (NaN
-            after :meth:`defer_sample_density`),
+            ``density_kgpm3`` (K,) truth local density including the density scale error,
             ``drag_area_m2`` (K,) drag area in effect (mode area times its factor).
         """
         out = {}

@@ -3,12 +3,12 @@
 - The buffered log (sim.run.BufferedLog) against direct appends: the reference is the recorder
   itself (sim.recorder.RunRecorder.append called once per engine append, as the engine did before
   the buffer existed).
-- The post-processing thread (sim.run.POST_THREAD: judge mean elements and the logged density on a
-  worker thread, one interval behind) against the same work inline on the main thread.
+- The log-writer thread (sim.run.LOG_THREAD: the buffered rows compressed and written on a thread
+  of their own) against writing them on the main thread.
 
 Flown with the Keplerian stand-in truth (tests/conftest.py ``fake_truth``) and the real
 hybrid_resolve law, so every closed-loop group (navigation, guidance diagnostics and predictions,
-commands, truth, mean elements) is compared; the thread also with the real Orekit truth.
+commands, truth, mean elements) is compared.
 """
 
 from __future__ import annotations
@@ -99,35 +99,18 @@ def test_buffered_log_equals_direct_appends(tmp_path, repo_root, fake_truth, mon
 
 
 @pytest.mark.parametrize("fail", [False, True])
-def test_post_thread_same_log_fake_truth(tmp_path, repo_root, fake_truth, monkeypatch, fail):
+def test_log_thread_same_log(tmp_path, repo_root, fake_truth, monkeypatch, fail):
     cfg = _demo_cfg(repo_root)
     if fail:
         fake_truth.fail_at_s = 3.2 * 5400.0
-    monkeypatch.setattr(sim.run, "POST_THREAD", True)
+    monkeypatch.setattr(sim.run, "LOG_WRITE_SIM_S", 2 * 5400.0)  # several writes per run
+    monkeypatch.setattr(sim.run, "LOG_THREAD", True)
     s1 = sim.run.run_scenario(cfg, tmp_path / "thread.h5")
-    monkeypatch.setattr(sim.run, "POST_THREAD", False)
+    monkeypatch.setattr(sim.run, "LOG_THREAD", False)
     s2 = sim.run.run_scenario(cfg, tmp_path / "inline.h5")
     assert s1.status == s2.status == ("failed" if fail else "ok")
     assert s1.n_samples == s2.n_samples > 0
     _assert_same_logs(_contents(s1.path), _contents(s2.path))
-
-
-@pytest.mark.orekit
-def test_post_thread_same_log_real_truth(tmp_path, repo_root, monkeypatch):
-    """With the real truth the deferred density is computed at the logged TOD positions instead
-    of the GCRF ones: equal to 1e-9 relative (the TOD rotation of the samples is interpolated to
-    about 2e-6 m, DEVELOPERS.md truth section; over a density scale height of about 60 km at
-    500 km, common practice, no source, that is 3e-11; measured 3.4e-13); everything else exact."""
-    cfg = _demo_cfg(repo_root, days=0.25, deadline_days=0.2)
-    monkeypatch.setattr(sim.run, "POST_THREAD", True)
-    s1 = sim.run.run_scenario(cfg, tmp_path / "thread.h5")
-    monkeypatch.setattr(sim.run, "POST_THREAD", False)
-    s2 = sim.run.run_scenario(cfg, tmp_path / "inline.h5")
-    assert s1.status == s2.status == "ok", (s1.reason, s2.reason)
-    a, b = _contents(s1.path), _contents(s2.path)
-    rho = a["spacecraft/beta/truth/density_kgpm3"][2]
-    assert rho.size > 300 and np.all(np.isfinite(rho)) and np.all(rho > 0)
-    _assert_same_logs(a, b, rtol={"truth/density_kgpm3": 1e-9})
 
 
 def test_buffer_checks_rows_at_the_call(tmp_path):
