@@ -21,22 +21,24 @@ Both are warmed up first (the JIT needs several simulated days, DEVELOPERS.md ``
 propagation is timed before and after the closed loop; the ratio is closed loop / mean of the two.
 The breakdown times covey's own functions from outside (wrappers installed by this script, not by
 covey): truth propagation (``TruthWorld.advance_to``; the step handler's own Python time is shown
-inside it), sample draining, mean elements, navigation, guidance, actuators, HDF5 logging, metrics.
+inside it), sample draining, mean elements, navigation, guidance, actuators, HDF5 logging (work on
+the log-writer thread shown as ``[worker]``, overlapped with the loop), metrics. Also printed: the
+ratio without the law's own ``step()`` time (the harness alone) and the process CPU-time ratio.
 
-Usage: ``python benchmarks/loop_overhead.py [--days 10] [--warmup-days 2] [--profile FILE]``
+Usage: ``python benchmarks/loop_overhead.py [--days 10] [--warmup-days 3] [--no-thread]
+[--profile FILE] [--keep-log PATH]``
 """
 
 from __future__ import annotations
 
 import argparse
 import functools
-import os
 import sys
 import tempfile
 import threading
 import time
-from concurrent.futures import Future
 from collections import defaultdict
+from concurrent.futures import Future
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
