@@ -272,3 +272,22 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())
+
+
+def console_main() -> None:
+    """Entry point of the installed ``covey`` command: :func:`main`, then a hard exit.
+
+    After a run the process holds a JVM (Orekit) and HiGHS; their teardown at interpreter exit can
+    abort the process ("FATAL: exception not rethrown", exit 134) after a successful run. Every log
+    is closed by then, so the command flushes its output and leaves with ``os._exit`` and the
+    exit code of :func:`main`.
+    """
+    code = 1
+    try:
+        code = main()
+    finally:
+        try:
+            sys.stdout.flush()
+            sys.stderr.flush()
+        finally:
+            os._exit(int(code) if isinstance(code, int) else 1)
