@@ -160,7 +160,6 @@ class ClosedLoopEngine(Engine):
         self.plans: dict[str, SpacecraftCommand] = {}
         self.cycle = 0
         self.belief = None
-        self.pred_dv: dict[str, list[float]] = {n: [] for n in self.deputy_names}
         self._setup_law()
         # initial modes: realised area factors of the starting attitude
         # realised per-run drag-area factor of every mode (the attitude pointing error of the
@@ -248,7 +247,6 @@ class ClosedLoopEngine(Engine):
                         units={"cycle_index": "1"})
         for n in self.deputy_names:
             v = float(dvr.get(n, np.nan))
-            self.pred_dv[n].append(v)
             self.rec.append(f"guidance/deputies/{n}", t_s=[t_s], dv_remaining_mps=[v])
             roe = (d.predicted_roe_m or {}).get(n)
             tp = np.asarray(d.predicted_t_s, float).reshape(-1)
@@ -275,9 +273,6 @@ class ClosedLoopEngine(Engine):
                 t_end_s=[r.t_end_s for r in realised],
                 area_factor=[r.area_factor for r in realised],
                 units={"area_factor": "1"})
-
-    def record_interval(self) -> None:
-        super().record_interval()
 
     def believed_density(self, r_eci_m: np.ndarray) -> np.ndarray:
         """Guidance's density belief at the given positions (its own model), kg/m^3."""
@@ -307,11 +302,3 @@ class ClosedLoopEngine(Engine):
                 self.rec.write_dataset(f"spacecraft/{n}/believed_density_kgpm3",
                                        self.believed_density(f[p][...]), units="kg/m^3",
                                        source="guidance.density.DensityModel from the law's settings")
-
-
-def remaining_dv_monotone(pred: list[float], rel_tol: float = 1e-3, abs_tol_mps: float = 1e-6) -> bool:
-    """True when a sequence of predicted remaining delta-v never increases (within tolerance)."""
-    a = np.asarray([p for p in pred if math.isfinite(p)], float)
-    if a.size < 2:
-        return True
-    return bool(np.all(np.diff(a) <= abs_tol_mps + rel_tol * np.abs(a[:-1])))
