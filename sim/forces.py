@@ -423,6 +423,8 @@ class ForceEnvironment:
 
         if name == "nrlmsise00":
             self.space_weather = self._cssi_data()
+            # sim.truth's batched logged density (pymsis) reproduces this constructor: UT1 (IERS
+            # 2010, simple EOP) for the model time, default switches
             atm = NRLMSISE00(self.space_weather, self.sun, self.earth)
             lst = self.env.local_solar_time
             if lst == "mean":

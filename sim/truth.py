@@ -16,6 +16,17 @@ What happens in one :meth:`TruthWorld.advance_to` call, per spacecraft:
    ``k * log_step_s`` (called once per integrator step and once per sample, never inside a force
    evaluation).
 
+Logged density: with NRLMSISE-00 in mean local solar time (and pymsis importable) the sampler
+records no density; :meth:`TruthWorld.drain_samples` computes it for all samples at once with the
+reference NRLMSISE-00 Fortran (pymsis, version 0) from the sampled positions (TOD -> ITRF by
+Orekit's exact transform on a :data:`TOD_GRID_S` grid and the Earth rotation in between, geodetic
+coordinates on ``forces.earth``, model time in UT1 as Orekit's) and the F10.7, F10.7A and daily
+Ap read from the same Orekit space-weather object the force model uses, once per UTC day. It
+matches Orekit's ``NRLMSISE00.getDensity`` within 1.6e-5 relative at every sample of a day
+(measured; pymsis runs the Fortran in single precision; tests/sim/test_truth_density.py). Other
+atmospheres, apparent local solar time, a run containing a leap second, or
+``TruthWorld(..., batched_density=False)`` use Orekit's ``getDensity`` per sample.
+
 Frames: integration in GCRF; every state, sample and delta-v handed out is in covey's ECI, the
 true-of-date frame (TOD, IERS 2010). Initial states are given as Eckstein-Hechler *mean* elements
 in TOD and converted with ``EcksteinHechlerTheory.meanToOsculating`` (gravity degree >= 2; with
@@ -54,7 +65,19 @@ G0_MPS2 = 9.80665
 """Standard gravity used by the rocket equation, m/s^2 (Orekit's Constants.G0_STANDARD_GRAVITY)."""
 
 TOD_GRID_S = 1800.0
-"""Grid step of the exact GCRF -> TOD transforms interpolated for the samples, s."""
+"""Grid step of the exact GCRF -> TOD transforms interpolated for the samples, s (also the grid of the
+exact TOD -> ITRF transforms used by the batched density)."""
+
+BATCHED_DENSITY = True
+"""Default of ``TruthWorld(batched_density=None)``: compute the logged NRLMSISE-00 density in batch
+with pymsis when the model allows it (see the module docstring); False forces Orekit's
+``getDensity`` per sample."""
+
+EARTH_ROTATION_RADPS = 7.292115146706979e-5
+"""Earth rotation rate used between exact TOD -> ITRF transforms, rad/s: the rate of the Earth
+rotation angle, 2 pi x 1.00273781191135448 / 86400 s (IERS Conventions 2010, eq. 5.15 [memory]).
+Over the 900 s to the nearest grid node the neglected precession in right ascension (7e-12 rad/s),
+UT1 - UTC drift and polar-motion change move a LEO position by millimetres (a test checks < 1 m)."""
 
 _EPS_T = 1e-6  # s: times closer than this are the same instant
 
@@ -200,9 +223,11 @@ _SAMPLER_CLASS = None
 
 def _make_sampler(world: "TruthWorld", craft: _Craft):
     """Python step handler sampling the grid ``k * log_step_s``. Per sample: interpolated state,
-    Cartesian GCRF state copied into a Java array (one call each), mass, model density. The GCRF
-    to TOD rotation is applied afterwards in numpy (:meth:`TruthWorld._gcrf_to_tod`). Called once
-    per integrator step, never inside a force evaluation. The proxy class is created once."""
+    Cartesian GCRF state copied into a Java array (one call each), mass, and (only when the world's
+    ``density_method`` is ``"orekit"``) the model density. The GCRF to TOD rotation is applied
+    afterwards in numpy (:meth:`TruthWorld._gcrf_to_tod`); a batched density is computed at
+    :meth:`TruthWorld.drain_samples`. Called once per integrator step, never inside a force
+    evaluation. The proxy class is created once."""
     global _SAMPLER_CLASS
     if _SAMPLER_CLASS is None:
         from java.lang import System
@@ -221,7 +246,7 @@ def _make_sampler(world: "TruthWorld", craft: _Craft):
                 self.epoch = world.forces.epoch
                 self.gcrf = world.forces.gcrf
                 self.h = float(world.run.log_step_s)
-                self.atm = world.forces.atmosphere
+                self.atm = world.forces.atmosphere if world.density_method == "orekit" else None
 
             @JOverride
             def init(self, s0, t):
@@ -243,7 +268,8 @@ def _make_sampler(world: "TruthWorld", craft: _Craft):
                     arraycopy(tmp, 0, buf, 6 * n, 6)
                     tt.append(k * h)
                     mm.append(s.getMass())
-                    rho.append(atm.getDensity(date, s.getPosition(), gcrf) if atm is not None else 0.0)
+                    if atm is not None:
+                        rho.append(atm.getDensity(date, s.getPosition(), gcrf))
                     k += 1
                     n += 1
                 craft.next_k = k
@@ -295,6 +321,166 @@ def _make_trigger_handler(world: "TruthWorld", craft: _Craft, dv_rtn: np.ndarray
     return _TRIGGER_CLASS(world, craft, dv_rtn, isp_s)
 
 
+def geodetic_from_ecef(r_m: np.ndarray, a_m: float, f: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Geodetic latitude, longitude (rad) and height (m) of Earth-fixed positions on an ellipsoid.
+
+    Closed form of Vermeille, "Direct transformation from geocentric coordinates to geodetic
+    coordinates", Journal of Geodesy 76, 451-454 (2002); valid outside the evolute of the meridian
+    ellipse (|r| above about 43 km for the Earth), so everywhere a spacecraft flies.
+
+    Parameters
+    ----------
+    r_m : np.ndarray, shape (K, 3)
+        Positions in the ellipsoid's body frame (ITRF), m.
+    a_m, f : float
+        Equatorial radius (m) and flattening.
+
+    Returns
+    -------
+    lat_rad, lon_rad, h_m : np.ndarray, shape (K,)
+    """
+    e2 = f * (2.0 - f)
+    e4 = e2 * e2
+    x, y, z = r_m[:, 0], r_m[:, 1], r_m[:, 2]
+    w2 = x * x + y * y
+    p = w2 / (a_m * a_m)
+    q = (1.0 - e2) * z * z / (a_m * a_m)
+    r = (p + q - e4) / 6.0
+    s = e4 * p * q / (4.0 * r ** 3)
+    t = np.cbrt(1.0 + s + np.sqrt(s * (2.0 + s)))
+    u = r * (1.0 + t + 1.0 / t)
+    v = np.sqrt(u * u + e4 * q)
+    w = e2 * (u + v - q) / (2.0 * v)
+    k = np.sqrt(u + v + w * w) - w
+    d = k * np.sqrt(w2) / (k + e2)
+    dz = np.sqrt(d * d + z * z)
+    return 2.0 * np.arctan2(z, d + dz), np.arctan2(y, x), (k + e2 - 1.0) / k * dz
+
+
+class _MsisBatch:
+    """Logged NRLMSISE-00 density of many samples in one pymsis call (not public).
+
+    Inputs as Orekit's ``NRLMSISE00.getDensity`` in mean local solar time builds them (read from
+    its byte code, Orekit 13.1): day of year and seconds of day in **UT1** (the time scale of the
+    ``NRLMSISE00(parameters, sun, earth)`` constructor: IERS 2010, simple EOP; at a UTC midnight
+    the day of year is still the previous one while UT1 - UTC < 0, a 0.5 % density step), local
+    solar time ``sec / 3600 + lon / 15``, geodetic latitude, longitude and altitude on
+    ``forces.earth``, and ``getDailyFlux``, ``getAverageFlux`` and ``getAp(date)[0]`` of
+    ``forces.space_weather`` with the default switches (switch 9 = 1: only the daily Ap is used;
+    pymsis ``geomagnetic_activity=1``). Orekit's CSSI reader holds the solar inputs constant over a
+    UTC day, or interpolates them linearly between file lines dated at midnight (after the daily
+    predictions), so two queries per UTC day (00:00 and 12:00) give the exact value at any time of
+    the day; they are cached per day.
+    """
+
+    def __init__(self, world: "TruthWorld", pymsis_module):
+        from sim.forces import parse_epoch
+
+        f = world.forces
+        self.world = world
+        self.calculate = pymsis_module.calculate
+        self.a_m = float(f.earth.getEquatorialRadius())
+        self.flattening = float(f.earth.getFlattening())
+        self.sw = f.space_weather
+        ep = parse_epoch(world.run.epoch_utc).replace(tzinfo=None)
+        self.epoch_day = np.datetime64(ep.date(), "D")
+        self.epoch_sod = ep.hour * 3600.0 + ep.minute * 60.0 + ep.second + ep.microsecond * 1e-6
+        self._days: dict[int, np.ndarray] = {}
+        self._nodes: dict[int, tuple[np.ndarray, float]] = {}
+        from org.orekit.time import TimeScalesFactory
+        from org.orekit.utils import IERSConventions
+
+        self.eop = TimeScalesFactory.getUT1(IERSConventions.IERS_2010, True).getEOPHistory()
+
+    def _day_inputs(self, n: int) -> np.ndarray:
+        """(2, 3): F10.7 (previous day), F10.7A, daily Ap at 00:00 and 12:00 UTC of day ``n``
+        (days after the epoch's UTC day)."""
+        hit = self._days.get(n)
+        if hit is None:
+            from org.orekit.time import AbsoluteDate, TimeScalesFactory
+
+            utc = TimeScalesFactory.getUTC()
+            day = (self.epoch_day + np.timedelta64(n, "D")).astype(object)
+            rows = []
+            for hour in (0, 12):
+                date = AbsoluteDate(day.year, day.month, day.day, hour, 0, 0.0, utc)
+                try:
+                    rows.append((float(self.sw.getDailyFlux(date)), float(self.sw.getAverageFlux(date)),
+                                 float(self.sw.getAp(date)[0])))
+                except Exception:  # Orekit: no data at 12:00, so the data end at 00:00, the only
+                    if not rows:   # time of that day a sample can have: the 00:00 values are exact
+                        raise
+                    rows.append(rows[0])
+            hit = np.array(rows)
+            self._days[n] = hit
+        return hit
+
+    def _node(self, j: int) -> tuple[np.ndarray, float]:
+        """At ``j * TOD_GRID_S``: Orekit's exact TOD -> ITRF rotation matrix (r_itrf = M r_tod) and
+        UT1 - UTC, s."""
+        hit = self._nodes.get(j)
+        if hit is None:
+            f = self.world.forces
+            date = f.epoch.shiftedBy(float(j * TOD_GRID_S))
+            tr = f.tod.getStaticTransformTo(f.itrf, date)
+            hit = (np.array([list(row) for row in tr.getRotation().getMatrix()]),
+                   float(self.eop.getUT1MinusUTC(date)))
+            if len(self._nodes) > 10000:
+                self._nodes.clear()
+            self._nodes[j] = hit
+        return hit
+
+    def tod_to_itrf(self, t: np.ndarray, r_tod: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """TOD positions (K, 3) at times ``t`` (K,) -> ITRF (K, 3), m; also UT1 - UTC (K,), s.
+
+        ``M(t) = M(t_j) R3(omega (t - t_j))`` with ``M(t_j)`` Orekit's exact TOD -> ITRF rotation
+        at the nearest grid node (polar motion and Greenwich apparent sidereal time at ``t_j``) and
+        ``R3`` the rotation about the true pole by the Earth rotation since then. UT1 - UTC is the
+        node's (it drifts by about 2 ms a day).
+        """
+        j = np.rint(t / TOD_GRID_S).astype(int)
+        ang = EARTH_ROTATION_RADPS * (t - j * TOD_GRID_S)
+        c, sn = np.cos(ang), np.sin(ang)
+        x, y = r_tod[:, 0], r_tod[:, 1]
+        r1 = np.column_stack([c * x + sn * y, c * y - sn * x, r_tod[:, 2]])
+        uj, inv = np.unique(j, return_inverse=True)
+        nodes = [self._node(int(jj)) for jj in uj]
+        inv = inv.reshape(-1)
+        mats = np.stack([n[0] for n in nodes])[inv]
+        dut1 = np.array([n[1] for n in nodes])[inv]
+        return np.einsum("kij,kj->ki", mats, r1), dut1
+
+    def density(self, t: np.ndarray, r_tod: np.ndarray) -> np.ndarray:
+        """Model density (no truth density error) at TOD positions (K, 3) and times ``t`` (K,), kg/m^3."""
+        t = np.asarray(t, dtype=float)
+        if t.size == 0:
+            return np.zeros(0)
+        r_itrf, dut1 = self.tod_to_itrf(t, r_tod)
+        lat, lon, h = geodetic_from_ecef(r_itrf, self.a_m, self.flattening)
+        lon_deg = np.degrees(lon)
+        # solar inputs: by UTC day (Orekit's CSSI lines are dated in UTC)
+        sod_utc = self.epoch_sod + t
+        n = np.floor(sod_utc / 86400.0).astype(int)
+        un, inv = np.unique(n, return_inverse=True)
+        tab = np.stack([self._day_inputs(int(d)) for d in un])[inv.reshape(-1)]  # (K, 2, 3)
+        sw = tab[:, 0, :] + (tab[:, 1, :] - tab[:, 0, :]) * ((sod_utc - 86400.0 * n) / 43200.0)[:, None]
+        # model time: Orekit's NRLMSISE00 takes day of year and seconds of day in UT1
+        # (NRLMSISE00(parameters, sun, earth) uses UT1, IERS 2010, simple EOP)
+        sod_ut1 = sod_utc + dut1
+        n1 = np.floor(sod_ut1 / 86400.0).astype(int)
+        sec = sod_ut1 - 86400.0 * n1
+        # pymsis reads whole seconds (datetime64[s]): round within the same day, and move the
+        # longitude by the remainder so that the local solar time sec/3600 + lon/15 stays exact
+        # (only the small UT-longitude terms then see the <= 1 s offset)
+        sec_i = np.minimum(np.rint(sec), 86399.0)
+        lon_deg = lon_deg + (sec - sec_i) * (360.0 / 86400.0)
+        dates = (self.epoch_day + n1.astype("timedelta64[D]")).astype("datetime64[s]") \
+            + sec_i.astype(np.int64).astype("timedelta64[s]")
+        out = self.calculate(dates, lon_deg, np.degrees(lat), h / 1e3, f107s=sw[:, 0], f107as=sw[:, 1],
+                             aps=np.repeat(sw[:, 2:3], 7, axis=1), version=0, geomagnetic_activity=1)
+        return np.asarray(out, dtype=float).reshape(t.size, -1)[:, 0]  # mass density, kg/m^3
+
+
 class TruthWorld:
     """The true dynamics of every spacecraft of a run.
 
@@ -303,6 +489,10 @@ class TruthWorld:
     run : RunConfig
     boot_info : BootInfo or None
         From :func:`sim.orekit_boot.boot`; booted here (with ``run.orekit_data``) when None.
+    batched_density : bool or None
+        Logged density of NRLMSISE-00 (mean local solar time) computed in batch with pymsis at
+        :meth:`drain_samples` (True) or by Orekit's ``getDensity`` per sample (False); None takes
+        :data:`BATCHED_DENSITY`. Other models always use Orekit per sample.
 
     Attributes
     ----------
@@ -312,9 +502,12 @@ class TruthWorld:
         Current time, s since the epoch.
     boot_info : BootInfo
     forces : sim.forces.ForceEnvironment
+    density_method : str
+        How the logged density is computed: ``"pymsis"`` (batched), ``"orekit"`` (per sample) or
+        ``"none"`` (no atmosphere: zeros).
     """
 
-    def __init__(self, run: RunConfig, boot_info: BootInfo | None = None):
+    def __init__(self, run: RunConfig, boot_info: BootInfo | None = None, batched_density: bool | None = None):
         self.run = run
         self.boot_info = boot_info if boot_info is not None else boot(run.orekit_data)
         if run.log_step_s <= 0:
@@ -324,6 +517,9 @@ class TruthWorld:
         self._stopped: str | None = None
         self._events: list[dict] = []
         self._tod_cache: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+        self._msis: _MsisBatch | None = None
+        self.density_method = self._choose_density_method(BATCHED_DENSITY if batched_density is None
+                                                          else bool(batched_density))
         self._init_density_error()
         names = [sc.name for sc in run.spacecraft]
         if len(set(names)) != len(names):
@@ -344,6 +540,36 @@ class TruthWorld:
                 self._events.append(dict(t_s=0.0, name=c.name, kind="altitude",
                                          detail=f"initial altitude {alt / 1e3:.1f} km below "
                                                 f"{run.events.min_altitude_km} km"))
+
+    def _choose_density_method(self, batched: bool) -> str:
+        """``"pymsis"`` when asked for and exact (NRLMSISE-00 in mean local solar time, pymsis
+        importable, no leap second from the epoch to a day after the run), else ``"orekit"``
+        (``"none"`` without atmosphere)."""
+        f = self.forces
+        if f.atmosphere is None:
+            return "none"
+        if not (batched and f.env.atmosphere == "nrlmsise00" and f.env.local_solar_time == "mean"):
+            return "orekit"
+        try:
+            import pymsis
+        except ImportError:
+            return "orekit"
+        # the batch maps t to UTC as epoch + t: check that no leap second lies in the run
+        import datetime as _dt
+
+        from org.orekit.time import TimeScalesFactory
+        from sim.forces import parse_epoch
+
+        span = float(self.run.duration_s) + 86400.0
+        end = f.epoch.shiftedBy(span).getComponents(TimeScalesFactory.getUTC())
+        expect = parse_epoch(self.run.epoch_utc) + _dt.timedelta(seconds=span)
+        d, tm = end.getDate(), end.getTime()
+        got = (_dt.datetime(d.getYear(), d.getMonth(), d.getDay(), tzinfo=_dt.timezone.utc)
+               + _dt.timedelta(seconds=float(tm.getSecondsInLocalDay())))
+        if abs((got - expect).total_seconds()) > 1e-3:
+            return "orekit"
+        self._msis = _MsisBatch(self, pymsis)
+        return "pymsis"
 
     # ---------------------------------------------------------------------------------
     # initial states
@@ -819,20 +1045,31 @@ class TruthWorld:
             ``density_kgpm3`` (K,) truth local density including the density scale error,
             ``drag_area_m2`` (K,) drag area in effect (mode area times its factor).
         """
+        ts = {n: np.asarray(c.samples["t"], dtype=float) for n, c in self._crafts.items()}
+        rvs = {n: np.concatenate(c.samples["rv"]) if c.samples["rv"] else np.zeros((0, 6))
+               for n, c in self._crafts.items()}
+        if self.density_method == "pymsis":  # one batch for every spacecraft
+            rho_all = self._msis.density(np.concatenate(list(ts.values())),
+                                         np.concatenate([rv[:, :3] for rv in rvs.values()]))
+            cuts = np.cumsum([len(t) for t in ts.values()])[:-1]
+            rhos = dict(zip(ts, np.split(rho_all, cuts)))
+        elif self.density_method == "orekit":
+            rhos = {n: np.asarray(c.samples["rho"], dtype=float) for n, c in self._crafts.items()}
+        else:
+            rhos = {n: np.zeros(len(t)) for n, t in ts.items()}
         out = {}
         for name, c in self._crafts.items():
             s = c.samples
-            t = np.asarray(s["t"], dtype=float)
+            t, rv = ts[name], rvs[name]
             mode_idx = np.array([c.mode_index[m] for m in c.modes_at(t)] if t.size else [], dtype=int)
             area = c.areas_at(t) if t.size else np.zeros(0)
-            rv = np.concatenate(s["rv"]) if s["rv"] else np.zeros((0, 6))
             out[name] = dict(
                 t_s=t,
                 r_eci_m=rv[:, :3].copy(),
                 v_eci_mps=rv[:, 3:].copy(),
                 mass_kg=np.asarray(s["m"], dtype=float),
                 mode_index=mode_idx,
-                density_kgpm3=np.asarray(s["rho"], dtype=float) * self.density_scale(t) if t.size else t.copy(),
+                density_kgpm3=rhos[name] * self.density_scale(t) if t.size else t.copy(),
                 drag_area_m2=area,
             )
             for k in s:

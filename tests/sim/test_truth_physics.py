@@ -606,14 +606,16 @@ def test_density_error_scales_the_drag_decay():
         drops.append(np.mean(da[-3:]) - np.mean(da[:3]))
         rho.append(s["chief"]["density_kgpm3"])
         t = s["chief"]["t_s"]
-        # logged density = the model's density at the logged position times the error factor
+        # logged density = the model's density at the logged position times the error factor (the
+        # logged NRLMSISE-00 density is computed in batch with pymsis: within 1e-4 of Orekit's, see
+        # tests/sim/test_truth_density.py)
         from org.hipparchus.geometry.euclidean.threed import Vector3D
 
         fe = w.forces
         for k in (0, 50, 143):
             model = fe.atmosphere.getDensity(fe.epoch.shiftedBy(float(t[k])), Vector3D(*map(float, s["chief"]["r_eci_m"][k])),
                                              fe.tod)
-            assert s["chief"]["density_kgpm3"][k] == pytest.approx(model * w.density_scale(t[k]), rel=1e-9)
+            assert s["chief"]["density_kgpm3"][k] == pytest.approx(model * w.density_scale(t[k]), rel=1e-4)
     f_gm = worlds[2].density_scale(t)
     assert np.std(f_gm) > 0.05  # the error really varies over the day
     print(f"decay ratio with +50 % density bias {rates[1] / rates[0]:.4f}; Gauss-Markov world "
