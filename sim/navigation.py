@@ -594,15 +594,7 @@ class NavigationModel:
             if perfect:
                 dr, dv, sr, sv, tf = zero, zero, zero, zero, t_s
             else:
-                f = self._fix("abs", n, k_fix)
-                pr, pv = self._abs[n]
-                dt = t_s - f.t_s
-                if dt <= _EPS_T:
-                    dr, dv, sr, sv = f.dr_m, f.dv_mps, pr.stated_sigma, pv.stated_sigma
-                else:
-                    dr, dv, sr, sv = self._propagate_error((r, v), dt, None, f.dr_m, f.dv_mps,
-                                                           pr.stated_sigma, pv.stated_sigma, m_rtn[n])
-                tf = f.t_s
+                dr, dv, sr, sv, tf = self._error_now("abs", n, k_fix, t_s, (r, v), lambda dt: None, m_rtn[n])
             m = m_rtn[n]
             r_est = r + m.T @ dr
             v_est = v + m.T @ dv
@@ -627,16 +619,8 @@ class NavigationModel:
             if perfect:
                 ddr, ddv, sr, sv, tf = zero, zero, zero, zero, t_s
             else:
-                f = self._fix("rel", n, k_fix)
-                pr, pv = self._rel[n]
-                dt = t_s - f.t_s
-                if dt <= _EPS_T:
-                    ddr, ddv, sr, sv = f.dr_m, f.dv_mps, pr.stated_sigma, pv.stated_sigma
-                else:
-                    rcf, vcf = kepler_propagate(rc, vc, -dt)
-                    ddr, ddv, sr, sv = self._propagate_error((rd, vd), dt, rtn_matrix(rcf, vcf), f.dr_m,
-                                                             f.dv_mps, pr.stated_sigma, pv.stated_sigma, mc)
-                tf = f.t_s
+                ddr, ddv, sr, sv, tf = self._error_now(
+                    "rel", n, k_fix, t_s, (rd, vd), lambda dt: rtn_matrix(*kepler_propagate(rc, vc, -dt)), mc)
             deputies[n] = RelativeEstimate(n, t_s, dr_true + ddr, dv_true + ddv, np.array(sr),
                                            np.array(sv), mass)
             rec["rel"][n] = {"ddr_rtn_m": np.array(ddr), "ddv_rtn_mps": np.array(ddv),
@@ -649,6 +633,24 @@ class NavigationModel:
         rec["rel_outage"] = not rel_valid
         nav = NavSolution(t_s, self.last_absolute[self.chief], deputies, valid)
         return nav, rec
+
+    def _error_now(self, kind, name, k_fix, t_s, state, frame_at_fix, m_now):
+        """Estimate-minus-truth at ``t_s`` from the last fix (epoch ``k_fix``) of ``kind``/``name``.
+
+        At the fix time the fix's own errors and the stated sigmas; later (an update gap or an
+        outage) the fix carried forward by :meth:`_propagate_error`, with ``frame_at_fix(dt)``
+        the RTN matrix the errors are expressed in at the fix (None: the spacecraft's own, the
+        absolute case; the chief's RTN propagated back, the relative case) and ``m_now`` the RTN
+        matrix at ``t_s``. Returns ``dr, dv, sigma_r, sigma_v, t_fix_s``.
+        """
+        f = self._fix(kind, name, k_fix)
+        pr, pv = (self._abs if kind == "abs" else self._rel)[name]
+        dt = t_s - f.t_s
+        if dt <= _EPS_T:
+            return f.dr_m, f.dv_mps, pr.stated_sigma, pv.stated_sigma, f.t_s
+        dr, dv, sr, sv = self._propagate_error(state, dt, frame_at_fix(dt), f.dr_m, f.dv_mps,
+                                               pr.stated_sigma, pv.stated_sigma, m_now)
+        return dr, dv, sr, sv, f.t_s
 
     def errors_at(self, kind: str, name: str, k: int) -> tuple[np.ndarray, np.ndarray]:
         """Fix errors (position, velocity; RTN axes of the fix) of ``kind``/``name`` at epoch ``k``.
