@@ -4,15 +4,21 @@ Prints seconds per spacecraft-day for the ``full`` preset (20x20 gravity, NRLMSI
 data, Sun, Moon, SRP), a 500 km sun-synchronous orbit, 60 s truth sampling, and the ratio
 covey / bare measured in this one run:
 
-- covey: ``TruthWorld.advance_to`` (samples every 60 s with density, altitude event, drag driver
-  spans), in one call per day and in one call per 5400 s guidance cycle, then ``drain_samples``;
-  and once per day with one sample per day, to separate the cost of the 60 s samples;
+- covey: ``TruthWorld.advance_to`` (samples every 60 s, altitude event, drag driver spans), in one
+  call per day and in one call per 5400 s guidance cycle, then ``drain_samples`` (which computes
+  the logged NRLMSISE-00 density of all samples in one pymsis call); once per day with one sample
+  per day, to separate the cost of the 60 s samples; and once per day with the logged density from
+  Orekit's ``getDensity`` per sample (``TruthWorld(batched_density=False)``, the method before the
+  batch), to show what the batch saves;
 - bare: the same Orekit force models and integrator settings (DormandPrince853, same tolerances
   and step cap, equinoctial elements, initial step set), one ``propagate()`` per day, no step
   handler, no event detector.
 
-Runs are interleaved and repeated; the median of the repeats is reported (the machine is shared,
-single timings vary by 20 % or more).
+Runs are interleaved and repeated (the machine is shared, single timings vary by 20 % or more);
+reported: the ratio of the minima, the median of the paired ratios (each covey run against the
+bare run just before it, so under about the same load; also in main-thread CPU time, where Orekit
+and covey run, which leaves out waiting for a core but not the slow-down of a busy one), and the
+ratio of the medians.
 
 Usage: ``python benchmarks/propagation.py [--days N] [--repeats R]``
 """
@@ -44,18 +50,21 @@ def make_run(days: float, log_step_s: float = 60.0) -> RunConfig:
     return RunConfig("bench", EPOCH, days * 86400.0, log_step_s, 1, EnvironmentConfig(preset="full"), chief, ())
 
 
-def covey_seconds_per_day(days: int, chunk_s: float, log_step_s: float = 60.0) -> float:
-    w = TruthWorld(make_run(days, log_step_s))
-    t0 = time.perf_counter()
+def covey_seconds_per_day(days: int, chunk_s: float, log_step_s: float = 60.0,
+                          batched: bool | None = None) -> tuple[float, float]:
+    """(wall-clock, main-thread CPU) seconds per simulated day."""
+    w = TruthWorld(make_run(days, log_step_s), batched_density=batched)
+    t0, c0 = time.perf_counter(), time.thread_time()
     t = 0.0
     while t < days * 86400.0 - 1e-6:
         t = min(t + chunk_s, days * 86400.0)
         w.advance_to(t)
     w.drain_samples()
-    return (time.perf_counter() - t0) / days
+    return (time.perf_counter() - t0) / days, (time.thread_time() - c0) / days
 
 
-def bare_seconds_per_day(days: int) -> float:
+def bare_seconds_per_day(days: int) -> tuple[float, float]:
+    """(wall-clock, main-thread CPU) seconds per simulated day."""
     w = TruthWorld(make_run(days))  # boots the JVM; gives the same initial state and force objects
     from org.hipparchus.ode.nonstiff import DormandPrince853Integrator
     from org.orekit.forces.drag import DragForce, IsotropicDrag
@@ -74,11 +83,11 @@ def bare_seconds_per_day(days: int) -> float:
         p.addForceModel(fm)
     p.addForceModel(DragForce(f.atmosphere, IsotropicDrag(float(c.area_ref), float(c.bus.cd) * c.area_at(0.0) / c.area_ref)))
     p.setInitialState(state)
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.thread_time()
     for d in range(days):
         integ.setInitialStepSize(MAX_STEP_S)
         p.propagate(f.epoch.shiftedBy(86400.0 * (d + 1)))
-    return (time.perf_counter() - t0) / days
+    return (time.perf_counter() - t0) / days, (time.thread_time() - c0) / days
 
 
 def main() -> None:
@@ -91,29 +100,42 @@ def main() -> None:
     bare_seconds_per_day(args.warmup_days)
     covey_seconds_per_day(max(1, args.warmup_days // 2), 86400.0)
     covey_seconds_per_day(max(1, args.warmup_days // 2), 5400.0)
-    res = {"bare": [], "covey_day": [], "covey_day_nolog": [], "covey_cycle": []}
+    keys = ("bare", "covey_day", "covey_day_nolog", "covey_cycle", "covey_day_rho_orekit")
+    runs = {k: [] for k in keys}
     for _ in range(args.repeats):
-        res["bare"].append(bare_seconds_per_day(args.days))
-        res["covey_day"].append(covey_seconds_per_day(args.days, 86400.0))
-        res["covey_day_nolog"].append(covey_seconds_per_day(args.days, 86400.0, 86400.0))
-        res["covey_cycle"].append(covey_seconds_per_day(args.days, 5400.0))
+        runs["bare"].append(bare_seconds_per_day(args.days))
+        runs["covey_day"].append(covey_seconds_per_day(args.days, 86400.0))
+        runs["covey_day_nolog"].append(covey_seconds_per_day(args.days, 86400.0, 86400.0))
+        runs["covey_cycle"].append(covey_seconds_per_day(args.days, 5400.0))
+        runs["covey_day_rho_orekit"].append(covey_seconds_per_day(args.days, 86400.0, batched=False))
+    res = {k: [r[0] for r in v] for k, v in runs.items()}  # wall-clock
+    cpu = {k: [r[1] for r in v] for k, v in runs.items()}  # main-thread CPU
     med = {k: statistics.median(v) for k, v in res.items()}
     low = {k: min(v) for k, v in res.items()}
+    # paired: each repeat's covey run against the bare run just before it (same load on the machine)
+    pair = {k: statistics.median([x / b for x, b in zip(res[k], res["bare"])]) for k in keys}
+    pair_cpu = {k: statistics.median([x / b for x, b in zip(cpu[k], cpu["bare"])]) for k in keys}
     print(f"full preset, 500 km SSO, 60 s sampling, {args.days} day(s) x {args.repeats} interleaved repeats, "
-          f"wall-clock; all runs:")
+          f"wall-clock, s per spacecraft-day; all runs:")
     for k, v in res.items():
-        print(f"  {k:12s} {[round(x, 3) for x in v]}")
+        print(f"  {k:20s} {[round(x, 3) for x in v]}")
     print(f"ratio of the minima: one call per day {low['covey_day'] / low['bare']:.3f}, "
           f"same without 60 s samples {low['covey_day_nolog'] / low['bare']:.3f}, "
-          f"5400 s cycle {low['covey_cycle'] / low['bare']:.3f}")
+          f"5400 s cycle {low['covey_cycle'] / low['bare']:.3f}, "
+          f"per-sample Orekit density {low['covey_day_rho_orekit'] / low['bare']:.3f}")
+    print("median of the paired ratios (covey run / the bare run just before it), wall-clock [main-thread CPU]:")
+    for k, label in (("covey_day", "one call per day"), ("covey_day_nolog", "same without 60 s samples"),
+                     ("covey_cycle", "5400 s cycle"), ("covey_day_rho_orekit", "per-sample Orekit density")):
+        print(f"  {label:27s} {pair[k]:.3f} [{pair_cpu[k]:.3f}]")
     print("medians:")
     print(f"bare Orekit, one propagate() per day       : {med['bare']:.3f} s per spacecraft-day")
     print(f"covey TruthWorld, advance_to once per day  : {med['covey_day']:.3f} s per spacecraft-day")
     print(f"  same, one sample per day (no 60 s log)   : {med['covey_day_nolog']:.3f} s per spacecraft-day")
+    print(f"  same, per-sample Orekit density          : {med['covey_day_rho_orekit']:.3f} s per spacecraft-day")
     print(f"covey TruthWorld, advance_to every 5400 s  : {med['covey_cycle']:.3f} s per spacecraft-day")
     print(f"ratio covey/bare (one call per day)        : {med['covey_day'] / med['bare']:.3f}  (target <= 1.1)")
     print(f"ratio covey/bare (5400 s guidance cycle)   : {med['covey_cycle'] / med['bare']:.3f}")
-
+    print(f"ratio covey/bare, per-sample Orekit density: {med['covey_day_rho_orekit'] / med['bare']:.3f}")
 
 if __name__ == "__main__":
     main()
