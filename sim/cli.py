@@ -270,10 +270,6 @@ def main(argv: Sequence[str] | None = None) -> int:
         return 1
 
 
-if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())
-
-
 def console_main() -> None:
     """Entry point of the installed ``covey`` command: :func:`main`, then a hard exit.
 
@@ -291,3 +287,7 @@ def console_main() -> None:
             sys.stderr.flush()
         finally:
             os._exit(int(code) if isinstance(code, int) else 1)
+
+
+if __name__ == "__main__":  # pragma: no cover - ``python -m sim.cli`` behaves as the installed command
+    console_main()

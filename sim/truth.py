@@ -12,9 +12,11 @@ What happens in one :meth:`TruthWorld.advance_to` call, per spacecraft:
    (``"global drag factor"`` = ``1 + bias + GM(t)``). Orekit adds a date event at each span
    transition, so the hot loop stays in Java.
 3. ONE ``propagate()`` to the target time, with the integrator's initial step set, an altitude
-   detector, and a Python step handler that samples the state on the fixed grid
-   ``k * log_step_s`` (called once per integrator step and once per sample, never inside a force
-   evaluation).
+   detector, and a sampler of the fixed grid ``k * log_step_s``: by default Orekit's CCSDS OEM
+   streaming writer as a Java fixed-step handler writing into a Java ``StringBuilder``, parsed in
+   numpy after the call (no Python per sample; :data:`JAVA_SAMPLER`); for a segment that does
+   not start on the grid, or with the per-sample density below, a Python step handler (called
+   once per integrator step, never inside a force evaluation).
 
 Logged density: with NRLMSISE-00 in mean local solar time (and pymsis importable) the sampler
 records no density; :meth:`TruthWorld.drain_samples` computes it for all samples at once with the
@@ -72,6 +74,12 @@ BATCHED_DENSITY = True
 """Default of ``TruthWorld(batched_density=None)``: compute the logged NRLMSISE-00 density in batch
 with pymsis when the model allows it (see the module docstring); False forces Orekit's
 ``getDensity`` per sample."""
+
+JAVA_SAMPLER = True
+"""Default of ``TruthWorld(java_sampler=None)``: sample the truth with Orekit's own CCSDS OEM
+streaming writer as a fixed-step handler (the samples never cross into Python one by one: the
+text of each segment is parsed in numpy afterwards) whenever the segment starts on the sampling
+grid and the density is not evaluated per sample; False keeps the Python step handler."""
 
 EARTH_ROTATION_RADPS = 7.292115146706979e-5
 """Earth rotation rate used between exact TOD -> ITRF transforms, rad/s: the rate of the Earth
@@ -507,8 +515,10 @@ class TruthWorld:
         ``"none"`` (no atmosphere: zeros).
     """
 
-    def __init__(self, run: RunConfig, boot_info: BootInfo | None = None, batched_density: bool | None = None):
+    def __init__(self, run: RunConfig, boot_info: BootInfo | None = None, batched_density: bool | None = None,
+                 java_sampler: bool | None = None):
         self.run = run
+        self.java_sampler = JAVA_SAMPLER if java_sampler is None else bool(java_sampler)
         self.boot_info = boot_info if boot_info is not None else boot(run.orekit_data)
         if run.log_step_s <= 0:
             raise ScenarioError("log_step_s", run.log_step_s, "a positive sampling step, s")
@@ -901,15 +911,29 @@ class TruthWorld:
         c.integrator.setInitialStepSize(float(min(MAX_STEP_S, max(t1 - t0, 1e-3))))
         h = float(self.run.log_step_s)
         n_max = max(0, int(math.floor((t1 + _EPS_T) / h)) - c.next_k + 1)
-        c.buf = c._jarray(6 * n_max + 6)
         n0 = len(c.seg["t"])
+        mux = p.getMultiplexer()
+        mux.clear()
+        java = (self.java_sampler and self.density_method != "orekit"
+                and abs(t0 / h - round(t0 / h)) * h <= _EPS_T and round(t0 / h) <= c.next_k)
+        if java:
+            oem_seg, text = self._oem_segment(c)
+            mux.add(h, oem_seg)
+            m0 = float(c.state.getMass())
+            n_exec = len(c.seg_executed)
+        else:
+            c.buf = c._jarray(6 * n_max + 6)
+            mux.add(c.sampler)
         try:
             end = p.propagate(f.epoch.shiftedBy(float(t1)))
         except Exception as exc:  # Orekit/JPype exceptions
             t_fail = c.seg["t"][-1] if c.seg["t"] else t0
             raise PropagationError(float(t_fail), c.name, str(exc)) from exc
+        if java:
+            self._take_oem_samples(c, str(text.toString()), float(end.getDate().durationFrom(f.epoch)), m0,
+                                   c.seg_executed[n_exec:])
         n = len(c.seg["t"]) - n0
-        if n:
+        if n and not java:
             rv = np.asarray(c.buf)[: 6 * n].reshape(n, 6)
             c.seg["rv"].append(self._gcrf_to_tod(np.asarray(c.seg["t"][n0:], dtype=float), rv))
         c.state = end
@@ -919,6 +943,59 @@ class TruthWorld:
             return t_end, "altitude"
         c.t_s = t1
         return t1, None
+
+    def _oem_segment(self, c: _Craft):
+        """A CCSDS OEM segment writer (Orekit's StreamingOemWriter, a Java fixed-step handler) that
+        writes the GCRF state at every sampling step into a Java StringBuilder, times as seconds
+        since the run epoch. Returns (handler, builder)."""
+        from java.lang import StringBuilder
+        from org.orekit.data import DataContext
+        from org.orekit.files.ccsds.definitions import BodyFacade, CenterName, FrameFacade, TimeSystem
+        from org.orekit.files.ccsds.ndm.odm import OdmHeader
+        from org.orekit.files.ccsds.ndm.odm.oem import OemMetadata, OemWriter, StreamingOemWriter
+        from org.orekit.files.ccsds.utils.generation import KvnGenerator
+        from org.orekit.utils import IERSConventions
+
+        f = self.forces
+        text = StringBuilder()
+        ctx = DataContext.getDefault()
+        gen = KvnGenerator(text, 0, c.name, 1e15, 0)  # relative dates up to 3e7 years after the epoch
+        hdr = OdmHeader()
+        hdr.setFormatVersion(3.0)
+        hdr.setOriginator("covey")
+        md = OemMetadata(1)
+        md.setObjectName(c.name)
+        md.setObjectID(c.name)
+        md.setCenter(BodyFacade.create(CenterName.EARTH, ctx.getCelestialBodies()))
+        md.setReferenceFrame(FrameFacade.map(f.gcrf))
+        md.setTimeSystem(TimeSystem.UTC)
+        writer = StreamingOemWriter(gen, OemWriter(IERSConventions.IERS_2010, ctx, f.epoch), hdr, md)
+        return writer.newSegment(), text
+
+    def _take_oem_samples(self, c: _Craft, text: str, t_end: float, m0: float, impulses: list) -> None:
+        """Grid samples of one segment from its OEM text (km, km/s, GCRF) into ``c.seg``; the mass
+        follows the impulses executed in the segment (it changes nowhere else)."""
+        h = float(self.run.log_step_s)
+        lines = [ln for ln in text.split("\n") if ln[:1].isdigit()]
+        if not lines:
+            return
+        ncol = len(lines[0].split())
+        data = np.array(" ".join(lines).split(), dtype=float).reshape(-1, ncol)
+        t = data[:, 0]
+        k = np.rint(t / h)
+        keep = (np.abs(t - k * h) <= _EPS_T) & (k >= c.next_k) & (t <= t_end + _EPS_T)
+        if not np.any(keep):
+            return
+        t, k, rv = k[keep] * h, k[keep].astype(int), data[keep, 1:7] * 1e3
+        _, first = np.unique(k, return_index=True)
+        t, k, rv = t[first], k[first], rv[first]
+        mass = np.full(t.size, m0)
+        for rec in sorted(impulses, key=lambda r: r["t_s"]):
+            mass[t > rec["t_s"] + _EPS_T] = rec["mass_after_kg"]
+        c.seg["t"].extend(t.tolist())
+        c.seg["m"].extend(mass.tolist())
+        c.seg["rv"].append(self._gcrf_to_tod(t, rv))
+        c.next_k = int(k[-1]) + 1
 
     def _begin(self, c: _Craft):
         for buf in c.seg.values():
