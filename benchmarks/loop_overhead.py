@@ -9,10 +9,10 @@ density error; realistic navigation and actuator errors), with the duration set 
 mean elements and mean ROE, HDF5 log, metrics). The wall time is the whole ``run_scenario`` call
 (truth set-up and metrics included; the JVM is already booted).
 
-Bare: the same three spacecraft with the same force model, built by covey's own builders (the
-initial osculating states, ``ForceEnvironment.static_forces`` and ``TruthWorld._drag_force`` over
-the whole run, which carries the density-error spans and the initial mode's drag area; the
-attitude-mode switches commanded by guidance are not in it), the same integrator settings
+Bare: the same three spacecraft with the same force model, built by covey's own builders
+(``TruthWorld.bare_propagator``: the initial osculating states, ``ForceEnvironment.static_forces``
+and the drag over the whole run, which carries the density-error spans and the initial mode's
+drag area; the attitude-mode switches commanded by guidance are not in it), the same integrator settings
 (DormandPrince853, Orekit tolerances for ``position_tolerance_m`` in equinoctial elements, step
 cap ``MAX_STEP_S``, initial step set), and ONE ``propagate()`` per spacecraft over the whole
 duration: no step handler, no event detector, no guidance.
@@ -138,11 +138,6 @@ def time_sampler() -> None:
 
 def bare_seconds(cfg) -> tuple[float, list[float]]:
     """One propagate() per spacecraft over the whole run, same force model, no handler."""
-    from org.hipparchus.ode.nonstiff import DormandPrince853Integrator
-    from org.orekit.orbits import OrbitType
-    from org.orekit.propagation.numerical import NumericalPropagator
-
-    from sim.forces import MAX_STEP_S
     from sim.truth import TruthWorld
 
     init = TruthWorld.__init__
@@ -151,22 +146,7 @@ def bare_seconds(cfg) -> tuple[float, list[float]]:
     init(w, cfg)  # covey's own builders: initial states, static forces, drag with its spans
     f = w.forces
     T = float(cfg.duration_s)
-    props = []
-    for c in w._crafts.values():
-        tol = NumericalPropagator.tolerances(float(f.env.position_tolerance_m), c.state.getOrbit(),
-                                             OrbitType.EQUINOCTIAL)
-        integ = DormandPrince853Integrator(1e-3, MAX_STEP_S, tol[0], tol[1])
-        p = NumericalPropagator(integ)
-        p.setOrbitType(OrbitType.EQUINOCTIAL)
-        p.setMu(f.mu_m3ps2)
-        for fm in c.static_forces:
-            p.addForceModel(fm)
-        drag = w._drag_force(c, 0.0, T)
-        if drag is not None:
-            p.addForceModel(drag)
-        p.setInitialState(c.state)
-        integ.setInitialStepSize(MAX_STEP_S)
-        props.append(p)
+    props = [w.bare_propagator(name)[0] for name in w._crafts]
     each = []
     c0 = time.process_time()
     t0 = time.perf_counter()
@@ -203,15 +183,11 @@ def replay_seconds(cfg, world, log_path: Path) -> float:
     step handler or event handler: the cost of the physics the loop asked for, without covey.
     """
     from org.hipparchus.geometry.euclidean.threed import Vector3D
-    from org.hipparchus.ode.nonstiff import DormandPrince853Integrator
     from org.orekit.attitudes import LofOffset
     from org.orekit.forces.maneuvers import ImpulseManeuver
     from org.orekit.frames import LOFType
-    from org.orekit.orbits import OrbitType
     from org.orekit.propagation.events import DateDetector
-    from org.orekit.propagation.numerical import NumericalPropagator
 
-    from sim.forces import MAX_STEP_S
     from sim.recorder import read_log
 
     log = read_log(log_path)
@@ -222,27 +198,14 @@ def replay_seconds(cfg, world, log_path: Path) -> float:
     f = world.forces
     T = float(cfg.duration_s)
     props = []
+    lof = LofOffset(f.gcrf, LOFType.QSW)
     for name, c in world._crafts.items():
-        c0 = w0._crafts[name]
-        tol = NumericalPropagator.tolerances(float(f.env.position_tolerance_m), c0.state.getOrbit(),
-                                             OrbitType.EQUINOCTIAL)
-        integ = DormandPrince853Integrator(1e-3, MAX_STEP_S, tol[0], tol[1])
-        p = NumericalPropagator(integ)
-        p.setOrbitType(OrbitType.EQUINOCTIAL)
-        p.setMu(f.mu_m3ps2)
-        for fm in c.static_forces:
-            p.addForceModel(fm)
-        drag = world._drag_force(c, 0.0, T)
-        if drag is not None:
-            p.addForceModel(drag)
-        lof = LofOffset(f.gcrf, LOFType.QSW)
+        p, _ = world.bare_propagator(name, T, state=w0._crafts[name].state)  # the flown drag spans
         for tk, dk, nk in zip(t_b, dv_b, names):
             if nk == name:
                 p.addEventDetector(ImpulseManeuver(DateDetector(f.epoch.shiftedBy(float(tk))), lof,
                                                    Vector3D(float(dk[0]), float(dk[1]), float(dk[2])),
                                                    float(c.bus.thruster.isp_s)))
-        p.setInitialState(c0.state)
-        integ.setInitialStepSize(MAX_STEP_S)
         props.append(p)
     t0 = time.perf_counter()
     ends = [p.propagate(f.epoch.shiftedBy(T)) for p in props]

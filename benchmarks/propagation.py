@@ -10,9 +10,9 @@ covey / bare measured in this one run:
   per day, to separate the cost of the 60 s samples; and once per day with the logged density from
   Orekit's ``getDensity`` per sample (``TruthWorld(batched_density=False)``, the method before the
   batch), to show what the batch saves;
-- bare: the same Orekit force models and integrator settings (DormandPrince853, same tolerances
-  and step cap, equinoctial elements, initial step set), one ``propagate()`` per day, no step
-  handler, no event detector.
+- bare: the same Orekit force models and integrator settings (``TruthWorld.bare_propagator``:
+  DormandPrince853, same tolerances and step cap, equinoctial elements, initial step set), one
+  ``propagate()`` per day, no step handler, no event detector.
 
 Runs are interleaved and repeated (the machine is shared, single timings vary by 20 % or more);
 reported: the ratio of the minima, the median of the paired ratios (each covey run against the
@@ -66,23 +66,8 @@ def covey_seconds_per_day(days: int, chunk_s: float, log_step_s: float = 60.0,
 def bare_seconds_per_day(days: int) -> tuple[float, float]:
     """(wall-clock, main-thread CPU) seconds per simulated day."""
     w = TruthWorld(make_run(days))  # boots the JVM; gives the same initial state and force objects
-    from org.hipparchus.ode.nonstiff import DormandPrince853Integrator
-    from org.orekit.forces.drag import DragForce, IsotropicDrag
-    from org.orekit.orbits import OrbitType
-    from org.orekit.propagation.numerical import NumericalPropagator
-
-    c = w._crafts["chief"]
     f = w.forces
-    state = c.state
-    tol = NumericalPropagator.tolerances(float(f.env.position_tolerance_m), state.getOrbit(), OrbitType.EQUINOCTIAL)
-    integ = DormandPrince853Integrator(1e-3, MAX_STEP_S, tol[0], tol[1])
-    p = NumericalPropagator(integ)
-    p.setOrbitType(OrbitType.EQUINOCTIAL)
-    p.setMu(f.mu_m3ps2)
-    for fm in c.static_forces:
-        p.addForceModel(fm)
-    p.addForceModel(DragForce(f.atmosphere, IsotropicDrag(float(c.area_ref), float(c.bus.cd) * c.area_at(0.0) / c.area_ref)))
-    p.setInitialState(state)
+    p, integ = w.bare_propagator("chief")  # the truth's integrator settings and force model, nothing else
     t0, c0 = time.perf_counter(), time.thread_time()
     for d in range(days):
         integ.setInitialStepSize(MAX_STEP_S)

@@ -154,14 +154,28 @@ class _Switch:
     reported: bool = False
 
 
+def new_propagator(forces: ForceEnvironment, orbit):
+    """The truth's integrator settings: a NumericalPropagator on DormandPrince853 with Orekit's
+    tolerances for ``position_tolerance_m`` in equinoctial elements, minimum step 1 ms, step cap
+    :data:`sim.forces.MAX_STEP_S`, equinoctial orbit type and the environment's ``mu``; no force
+    model, state, handler or detector yet. Returns ``(propagator, integrator)`` (Orekit's
+    propagator does not give its integrator back; set its initial step before each call)."""
+    from org.hipparchus.ode.nonstiff import DormandPrince853Integrator
+    from org.orekit.orbits import OrbitType
+    from org.orekit.propagation.numerical import NumericalPropagator
+
+    tol = NumericalPropagator.tolerances(float(forces.env.position_tolerance_m), orbit, OrbitType.EQUINOCTIAL)
+    integrator = DormandPrince853Integrator(1e-3, MAX_STEP_S, tol[0], tol[1])
+    p = NumericalPropagator(integrator)
+    p.setOrbitType(OrbitType.EQUINOCTIAL)
+    p.setMu(forces.mu_m3ps2)
+    return p, integrator
+
+
 class _Craft:
     """Book-keeping of one spacecraft (not public)."""
 
     def __init__(self, world: "TruthWorld", cfg: SpacecraftConfig, state0):
-        from org.hipparchus.ode.nonstiff import DormandPrince853Integrator
-        from org.orekit.orbits import OrbitType
-        from org.orekit.propagation.numerical import NumericalPropagator
-
         self.world = world
         self.cfg = cfg
         self.name = cfg.name
@@ -183,11 +197,7 @@ class _Craft:
         self.state = state0
         self.t_s = 0.0
         env = world.forces
-        orbit = state0.getOrbit()
-        tol = NumericalPropagator.tolerances(float(env.env.position_tolerance_m), orbit, OrbitType.EQUINOCTIAL)
-        self.integrator = DormandPrince853Integrator(1e-3, MAX_STEP_S, tol[0], tol[1])
-        self.propagator = NumericalPropagator(self.integrator)
-        self.propagator.setOrbitType(OrbitType.EQUINOCTIAL)
+        self.propagator, self.integrator = new_propagator(env, state0.getOrbit())
         self.static_forces = env.static_forces(self.srp_area, cfg.bus.cr)
         # buffers: committed (to drain) and of the running segment
         self.samples: dict[str, list] = {k: [] for k in ("t", "rv", "m", "rho")}
@@ -943,6 +953,25 @@ class TruthWorld:
             return t_end, "altitude"
         c.t_s = t1
         return t1, None
+
+    def bare_propagator(self, name: str, t1_s: float | None = None, state=None):
+        """A plain Orekit propagator of spacecraft ``name`` with the truth's integrator settings
+        and force model: the static forces and the drag with its attitude-mode and density-error
+        spans over ``[0, t1_s]`` (default the run duration) as the timeline stands now, initial
+        state ``state`` (default the current one). No step handler, no event detector, no
+        impulses: a reference for benchmarks and cross-checks (one ``propagate()`` over the run
+        is what covey's truth costs without covey). Returns ``(propagator, integrator)``."""
+        c = self._craft(name)
+        st = c.state if state is None else state
+        p, integ = new_propagator(self.forces, st.getOrbit())
+        for fm in c.static_forces:
+            p.addForceModel(fm)
+        drag = self._drag_force(c, 0.0, float(self.run.duration_s if t1_s is None else t1_s))
+        if drag is not None:
+            p.addForceModel(drag)
+        p.setInitialState(st)
+        integ.setInitialStepSize(MAX_STEP_S)
+        return p, integ
 
     def _oem_segment(self, c: _Craft):
         """A CCSDS OEM segment writer (Orekit's StreamingOemWriter, a Java fixed-step handler) that
