@@ -314,7 +314,10 @@ class Engine:
         """Spacecraft attributes and empty tables, so every log has the same layout."""
         rec = self.rec
         sc_cfg = {sc.name: sc for sc in self.cfg.spacecraft}
-        rec.write_attrs("spacecraft", names=list(self.names), chief=self.chief)
+        rec.write_attrs("spacecraft", names=list(self.names), chief=self.chief,
+                        truth_density_method=str(getattr(self.world, "density_method", "unknown")),
+                        truth_sampler=("orekit_oem_writer" if getattr(self.world, "java_sampler", False)
+                                       else "python_step_handler"))
         for name in self.names:
             sc = sc_cfg.get(name)
             modes = list(self.world.mode_names(name))
