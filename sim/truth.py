@@ -210,8 +210,7 @@ class _Craft:
         self.next_k = 0  # next grid index to sample
         self.executed: list[dict] = []
         self.seg_executed: list[dict] = []
-        self.sampler = _make_sampler(world, self)
-        self.propagator.setStepHandler(self.sampler)
+        self.sampler = _make_sampler(world, self)  # put on the propagator per segment (_run_segment)
 
     # -- schedule lookups ---------------------------------------------------------------
     def modes_at(self, t) -> list[str]:
@@ -920,7 +919,6 @@ class TruthWorld:
         p.resetInitialState(c.state)
         c.integrator.setInitialStepSize(float(min(MAX_STEP_S, max(t1 - t0, 1e-3))))
         h = float(self.run.log_step_s)
-        n_max = max(0, int(math.floor((t1 + _EPS_T) / h)) - c.next_k + 1)
         n0 = len(c.seg["t"])
         mux = p.getMultiplexer()
         mux.clear()
@@ -932,6 +930,7 @@ class TruthWorld:
             m0 = float(c.state.getMass())
             n_exec = len(c.seg_executed)
         else:
+            n_max = max(0, int(math.floor((t1 + _EPS_T) / h)) - c.next_k + 1)
             c.buf = c._jarray(6 * n_max + 6)
             mux.add(c.sampler)
         try:
