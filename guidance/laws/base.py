@@ -98,6 +98,11 @@ COMMON_SETTINGS: dict[str, tuple[Any, Callable, str]] = {
                       "guidance's density model (guidance.density)"),
     "f107_forecast_sfu": (150.0, _number(50.0, 400.0, unit="sfu"), "forecast F10.7, sfu"),
     "density_coefficient": (1.0, _number(1e-3, 1e3), "multiplies guidance's density estimate"),
+    "weak_drag_margin": (1.0, _number(0.01, 1.0),
+                         "hybrid laws: fraction of the believed differential drag of the weaker drag "
+                         "mode (smaller |acceleration| against the chief) the planner counts on; "
+                         "below 1 the plan keeps drag authority in reserve in the direction drag is "
+                         "weakest, for re-plans to use"),
 }
 
 
@@ -387,6 +392,10 @@ class PlannerLaw:
 
         if self.PLAN_DRAG:
             w_lo, w_hi = accel(LOW_DRAG_MODE), accel(HIGH_DRAG_MODE)
+            if abs(w_lo) < abs(w_hi):  # plan the weaker direction with margin
+                w_lo *= s["weak_drag_margin"]
+            else:
+                w_hi *= s["weak_drag_margin"]
         else:
             w_lo = w_hi = accel(s["hold_mode"])
         return PlanRequest(

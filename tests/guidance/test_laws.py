@@ -130,7 +130,8 @@ def test_unknown_setting_is_refused_with_the_allowed_keys(name):
 
 @pytest.mark.parametrize("key,value", [("burns_per_orbit", 0), ("segments_per_orbit", 2.5),
                                        ("min_dwell_s", -1.0), ("chief_mode", "sideways"),
-                                       ("density_coefficient", 0.0), ("stm", "cw")])
+                                       ("density_coefficient", 0.0), ("stm", "cw"),
+                                       ("weak_drag_margin", 0.0), ("weak_drag_margin", 1.5)])
 def test_bad_setting_values_name_the_key(key, value):
     with pytest.raises(GuidanceInputError) as err:
         load_law("hybrid_single").setup(mission({key: value}))
@@ -264,3 +265,20 @@ def test_example_law_drives_the_along_track_error_the_right_way():
     law.setup(mission(target=(0.0, 4000.0, 0, 0, 0, 0)))
     behind = law.step(0.0, nav(0.0, [0.0, 0.0, 0, 0, 0, 0]))
     assert [s.mode for s in behind.commands["d1"].mode_switches] == ["max_drag"]
+
+
+def test_weak_drag_margin_scales_only_the_weaker_mode_of_the_plan():
+    # The planner's drag bounds with weak_drag_margin = 0.5 against the same law with 1.0: the mode
+    # with the smaller |differential acceleration| (here min_drag against a nominal chief) is
+    # counted at half, the other is unchanged (DEVELOPERS.md, guidance-laws settings).
+    reqs = {}
+    for k in (1.0, 0.5):
+        law = load_law("hybrid_single")
+        law.setup(mission({"weak_drag_margin": k}))
+        law.step(0.0, nav(0.0, np.zeros(6)))
+        reqs[k] = law.deputies["d1"].plan.request
+    lo1, hi1 = reqs[1.0].w_low_mps2, reqs[1.0].w_high_mps2
+    lo5, hi5 = reqs[0.5].w_low_mps2, reqs[0.5].w_high_mps2
+    assert np.all(np.abs(lo1) < np.abs(hi1)) and np.all(lo1 != 0)
+    np.testing.assert_allclose(lo5, 0.5 * lo1, rtol=1e-12)
+    np.testing.assert_allclose(hi5, hi1, rtol=1e-12)
