@@ -99,10 +99,11 @@ COMMON_SETTINGS: dict[str, tuple[Any, Callable, str]] = {
     "f107_forecast_sfu": (150.0, _number(50.0, 400.0, unit="sfu"), "forecast F10.7, sfu"),
     "density_coefficient": (1.0, _number(1e-3, 1e3), "multiplies guidance's density estimate"),
     "weak_drag_margin": (1.0, _number(0.01, 1.0),
-                         "hybrid laws: fraction of the believed differential drag of the weaker drag "
-                         "mode (smaller |acceleration| against the chief) the planner counts on; "
-                         "below 1 the plan keeps drag authority in reserve in the direction drag is "
-                         "weakest, for re-plans to use"),
+                         "re-planning hybrid laws (hybrid_resolve): fraction of the believed "
+                         "differential drag of the weaker drag mode (smaller |acceleration| against "
+                         "the chief) the planner counts on; below 1 the plan keeps drag authority in "
+                         "reserve in the direction drag is weakest, for the re-plans to use; laws "
+                         "that plan once accept and ignore it (a reserve nobody uses only misses)"),
 }
 
 
@@ -165,6 +166,7 @@ class PlannerLaw:
 
     NAME = "planner"
     PLAN_DRAG = False
+    REPLANS = False  # re-plans from navigation (then weak_drag_margin applies)
     EXTRA_SETTINGS: dict[str, tuple[Any, Callable, str]] = {}
 
     def __init__(self):
@@ -392,10 +394,11 @@ class PlannerLaw:
 
         if self.PLAN_DRAG:
             w_lo, w_hi = accel(LOW_DRAG_MODE), accel(HIGH_DRAG_MODE)
+            k = s["weak_drag_margin"] if self.REPLANS else 1.0
             if abs(w_lo) < abs(w_hi):  # plan the weaker direction with margin
-                w_lo *= s["weak_drag_margin"]
+                w_lo *= k
             else:
-                w_hi *= s["weak_drag_margin"]
+                w_hi *= k
         else:
             w_lo = w_hi = accel(s["hold_mode"])
         return PlanRequest(

@@ -30,6 +30,7 @@ class HybridResolve(PlannerLaw):
 
     NAME = "hybrid_resolve"
     PLAN_DRAG = True
+    REPLANS = True
     EXTRA_SETTINGS = {
         "resolve_s": (None, _optional(_number(1.0, unit="s")),
                       "re-solve cadence (default: the guidance cycle), s"),

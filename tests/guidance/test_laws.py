@@ -271,14 +271,18 @@ def test_weak_drag_margin_scales_only_the_weaker_mode_of_the_plan():
     # The planner's drag bounds with weak_drag_margin = 0.5 against the same law with 1.0: the mode
     # with the smaller |differential acceleration| (here min_drag against a nominal chief) is
     # counted at half, the other is unchanged (DEVELOPERS.md, guidance-laws settings).
-    reqs = {}
-    for k in (1.0, 0.5):
-        law = load_law("hybrid_single")
+    # A law that plans once accepts the setting and ignores it.
+    def request(name, k):
+        law = load_law(name)
         law.setup(mission({"weak_drag_margin": k}))
         law.step(0.0, nav(0.0, np.zeros(6)))
-        reqs[k] = law.deputies["d1"].plan.request
-    lo1, hi1 = reqs[1.0].w_low_mps2, reqs[1.0].w_high_mps2
-    lo5, hi5 = reqs[0.5].w_low_mps2, reqs[0.5].w_high_mps2
+        return law.deputies["d1"].plan.request
+
+    r1, r5 = request("hybrid_resolve", 1.0), request("hybrid_resolve", 0.5)
+    lo1, hi1 = r1.w_low_mps2, r1.w_high_mps2
     assert np.all(np.abs(lo1) < np.abs(hi1)) and np.all(lo1 != 0)
-    np.testing.assert_allclose(lo5, 0.5 * lo1, rtol=1e-12)
-    np.testing.assert_allclose(hi5, hi1, rtol=1e-12)
+    np.testing.assert_allclose(r5.w_low_mps2, 0.5 * lo1, rtol=1e-12)
+    np.testing.assert_allclose(r5.w_high_mps2, hi1, rtol=1e-12)
+    s5 = request("hybrid_single", 0.5)
+    np.testing.assert_allclose(s5.w_low_mps2, lo1, rtol=1e-12)
+    np.testing.assert_allclose(s5.w_high_mps2, hi1, rtol=1e-12)

@@ -468,8 +468,8 @@ def test_realistic_spread_resolve_ends_closer_and_single_saves_dv(spread_real):
 
 SPREAD_RESOLVE_DV_KNOWN_FAILURE = (
     "measured on the 6-day copy: the re-solve flies 0.0079 / 0.0055 / 0.0120 m/s against the "
-    "single-solve hybrid's 0.0040 / 0.0039 / 0.0083 (2.0 / 1.4 / 1.45 x; below propulsion only for "
-    "all three). The single-solve hybrid ends 1.4-32 km off along-track and never pays for it; the "
+    "single-solve hybrid's 0.0040 / 0.0040 / 0.0083 (2.0 / 1.4 / 1.45 x; below propulsion only for "
+    "all three). The single-solve hybrid ends 0.4-22 km off along-track and never pays for it; the "
     "re-solve ends within 25 m and pays for what the drag did not deliver: the deputies' realised "
     "min_drag area changes from spell to spell (0.0236-0.0311 m^2 against 0.0200, attitude error), "
     "so the weak backward drag is 0.36-1.25 x the belief, plus the density mismatch and the "
