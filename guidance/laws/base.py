@@ -1,10 +1,12 @@
 """Shared machinery of covey's planner-based laws: settings, navigation, requests, commands.
 
-A law built on :class:`PlannerLaw` declares three class attributes:
+A law built on :class:`PlannerLaw` declares these class attributes:
 
 - ``NAME``: its registry name;
 - ``PLAN_DRAG``: whether the deputies' drag duty cycles are planned (hybrid) or the deputies hold
   ``hold_mode`` with the differential drag as a known disturbance (propulsion only);
+- ``REPLANS``: whether it re-plans from navigation (then the common setting
+  ``weak_drag_margin`` applies to its plans; default False);
 - ``EXTRA_SETTINGS``: its own settings (name -> (default, checker, description)).
 
 and may override :meth:`PlannerLaw._wants_plan` (when to re-plan) and
