@@ -374,6 +374,23 @@ def geodetic_from_ecef(r_m: np.ndarray, a_m: float, f: float) -> tuple[np.ndarra
     return 2.0 * np.arctan2(z, d + dz), np.arctan2(y, x), (k + e2 - 1.0) / k * dz
 
 
+def _rotation_matrix(transform) -> np.ndarray:
+    """The (3, 3) rotation matrix of an Orekit (static) transform (``r_to = M r_from``)."""
+    return np.array([list(row) for row in transform.getRotation().getMatrix()])
+
+
+def _grid_cached(cache: dict, key: int, compute: Callable[[], tuple], limit: int = 10000) -> tuple:
+    """``cache[key]``, computed by ``compute()`` on a miss; the cache is emptied past ``limit``
+    entries (the exact transforms on the :data:`TOD_GRID_S` grid, reused by nearby samples)."""
+    hit = cache.get(key)
+    if hit is None:
+        hit = compute()
+        if len(cache) > limit:
+            cache.clear()
+        cache[key] = hit
+    return hit
+
+
 class _MsisBatch:
     """Logged NRLMSISE-00 density of many samples in one pymsis call (not public).
 
@@ -435,17 +452,12 @@ class _MsisBatch:
     def _node(self, j: int) -> tuple[np.ndarray, float]:
         """At ``j * TOD_GRID_S``: Orekit's exact TOD -> ITRF rotation matrix (r_itrf = M r_tod) and
         UT1 - UTC, s."""
-        hit = self._nodes.get(j)
-        if hit is None:
+        def exact():
             f = self.world.forces
             date = f.epoch.shiftedBy(float(j * TOD_GRID_S))
-            tr = f.tod.getStaticTransformTo(f.itrf, date)
-            hit = (np.array([list(row) for row in tr.getRotation().getMatrix()]),
-                   float(self.eop.getUT1MinusUTC(date)))
-            if len(self._nodes) > 10000:
-                self._nodes.clear()
-            self._nodes[j] = hit
-        return hit
+            return _rotation_matrix(f.tod.getStaticTransformTo(f.itrf, date)), float(self.eop.getUT1MinusUTC(date))
+
+        return _grid_cached(self._nodes, j, exact)
 
     def tod_to_itrf(self, t: np.ndarray, r_tod: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """TOD positions (K, 3) at times ``t`` (K,) -> ITRF (K, 3), m; also UT1 - UTC (K,), s.
@@ -787,16 +799,12 @@ class TruthWorld:
     # ---------------------------------------------------------------------------------
     def _tod_transform(self, k: int) -> tuple[np.ndarray, np.ndarray]:
         """GCRF -> TOD rotation matrix and rotation rate (rad/s, TOD axes) at ``k * TOD_GRID_S``."""
-        hit = self._tod_cache.get(k)
-        if hit is None:
+        def exact():
             f = self.forces
             tr = f.gcrf.getTransformTo(f.tod, f.epoch.shiftedBy(float(k * TOD_GRID_S)))
-            m = np.array([list(row) for row in tr.getRotation().getMatrix()])
-            hit = (m, _vec(tr.getRotationRate()))
-            if len(self._tod_cache) > 10000:
-                self._tod_cache.clear()
-            self._tod_cache[k] = hit
-        return hit
+            return _rotation_matrix(tr), _vec(tr.getRotationRate())
+
+        return _grid_cached(self._tod_cache, k, exact)
 
     def _gcrf_to_tod(self, t: np.ndarray, rv_gcrf: np.ndarray) -> np.ndarray:
         """GCRF position-velocity (K, 6) at times ``t`` (K,) -> TOD (K, 6).
