@@ -138,12 +138,7 @@ def time_sampler() -> None:
 
 def bare_seconds(cfg) -> tuple[float, list[float]]:
     """One propagate() per spacecraft over the whole run, same force model, no handler."""
-    from sim.truth import TruthWorld
-
-    init = TruthWorld.__init__
-    init = getattr(init, "__wrapped_original__", init)
-    w = TruthWorld.__new__(TruthWorld)
-    init(w, cfg)  # covey's own builders: initial states, static forces, drag with its spans
+    w = fresh_world(cfg)  # covey's own builders: initial states, static forces, drag with its spans
     f = w.forces
     T = float(cfg.duration_s)
     props = [w.bare_propagator(name)[0] for name in w._crafts]
@@ -194,7 +189,7 @@ def replay_seconds(cfg, world, log_path: Path) -> float:
     names = [x.decode() if isinstance(x, bytes) else str(x) for x in log.get("maneuvers/name")]
     t_b = np.asarray(log.get("maneuvers/t_s"), dtype=float)
     dv_b = np.asarray(log.get("maneuvers/dv_rtn_mps"), dtype=float).reshape(-1, 3)
-    w0 = TruthWorld_new(cfg)  # initial states as the run had them
+    w0 = fresh_world(cfg)  # initial states as the run had them
     f = world.forces
     T = float(cfg.duration_s)
     props = []
@@ -221,7 +216,8 @@ def replay_seconds(cfg, world, log_path: Path) -> float:
 REPLAY_GAP_M: list = []
 
 
-def TruthWorld_new(cfg):
+def fresh_world(cfg):
+    """A TruthWorld built by the original constructor (not timed, not captured by this script)."""
     from sim.truth import TruthWorld
 
     init = TruthWorld.__init__
@@ -296,7 +292,7 @@ def main() -> None:
     wall, cpu, summary = closed_loop_cpu(cfg, out, args.profile)
     timers = dict(TIMERS)
     calls = dict(CALLS)
-    flown = WORLDS[-1]  # the closed loop's truth (before bare_seconds builds another)
+    flown = WORLDS[-1]  # the closed loop's truth
     bare_after, each_after = bare_seconds(cfg)
     replay = replay_seconds(cfg, flown, out)
     bare = 0.5 * (bare_before + bare_after)
