@@ -97,6 +97,9 @@ def _new_highs():
 STM_MODELS = {"j2": stm_j2, "kepler": stm_kepler}
 """Dynamics models a plan may use (names -> STM functions of :mod:`guidance.dynamics`)."""
 
+_BIT_UP = 1.0 + 1e-12
+"""An impulse raised to the minimum bit is scaled to ``dv_min * _BIT_UP`` (never one ulp below)."""
+
 TINY_DV_MPS = 1e-9
 """Impulses below this (m/s) are numerical noise of the LP and are removed without re-solving."""
 
@@ -367,6 +370,8 @@ class MinFuelProgram:
         self.D = np.broadcast_to(np.asarray(dv_max, dtype=float), (self.J,)).astype(float)
         self.soft = None if soft_weight is None else np.asarray(soft_weight, dtype=float).reshape(6)
         self.excluded = np.zeros(self.J, dtype=bool)
+        self.duty_lo = np.zeros(self.S)
+        self.duty_hi = np.ones(self.S)
         self.rounds = 0
         self._finite = bool(np.all(np.isfinite(self.G)) and np.all(np.isfinite(self.H))
                             and np.all(np.isfinite(self.delta)) and np.all(np.isfinite(self.D)))
@@ -466,6 +471,35 @@ class MinFuelProgram:
             self._col_dir.append(d)
             self._cols_of.setdefault(j, []).append(base + k)
 
+    def set_duty_bounds(self, lo, hi):
+        """Bounds of the drag duty columns (shape (S,) each, within [0, 1]); equal bounds fix a
+        column at that value. The LP keeps its columns and basis (a warm re-solve)."""
+        lo = np.clip(np.asarray(lo, dtype=float).reshape(self.S), 0.0, 1.0)
+        hi = np.clip(np.asarray(hi, dtype=float).reshape(self.S), 0.0, 1.0)
+        hi = np.maximum(hi, lo)
+        if self.S and self._finite and (np.any(lo != self.duty_lo) or np.any(hi != self.duty_hi)):
+            idx = np.arange(12, 12 + self.S, dtype=np.int32)
+            self._h.changeColsBounds(idx.size, idx, lo, hi)
+        self.duty_lo, self.duty_hi = lo, hi
+
+    def set_delta(self, delta):
+        """Change the right-hand side (shape (6,), m/s); the LP keeps its columns and basis."""
+        delta = np.asarray(delta, dtype=float).reshape(6)
+        if self._finite and np.any(delta != self.delta):
+            rows = np.arange(6, dtype=np.int32)
+            self._h.changeRowsBounds(6, rows, delta, delta)
+        self.delta = delta.copy()
+
+    def include_all(self):
+        """Undo :meth:`exclude`: every candidate burn may be used again (up to its maximum)."""
+        if not np.any(self.excluded):
+            return
+        self.excluded[:] = False
+        if self._finite and self._col_burn:
+            burn = np.asarray(self._col_burn)
+            idx = np.arange(self._first_burn_col, self._first_burn_col + burn.size, dtype=np.int32)
+            self._h.changeColsBounds(idx.size, idx, np.zeros(idx.size), self.D[burn])
+
     def exclude(self, burns):
         """Forbid candidate burns (fix their columns at zero and stop pricing them)."""
         burns = np.atleast_1d(np.asarray(burns, dtype=int))
@@ -492,7 +526,12 @@ class MinFuelProgram:
         D = np.where(self.excluded, 0.0, self.D)
         # an excluded burn has no capacity: its term is -0 * (f - 1)_+ ... but a zero-capacity
         # column still constrains nothing, so the bound stays valid
-        return float(lam @ self.delta - np.sum(D * np.maximum(f - 1.0, 0.0)) - np.sum(np.maximum(c, 0.0)))
+        return float(lam @ self.delta - np.sum(D * np.maximum(f - 1.0, 0.0)) - self._drag_support(c))
+
+    def _drag_support(self, c):
+        """``sum_s max(c_s lo_s, c_s hi_s)``: the drag columns' part of the support function
+        (``sum (c_s)_+`` for the default bounds [0, 1])."""
+        return float(np.sum(np.maximum(c * self.duty_lo, c * self.duty_hi)))
 
     def shortfall(self, lam):
         """``lam.delta - support(lam)`` for unit ``lam``: positive proves the target unreachable."""
@@ -503,7 +542,7 @@ class MinFuelProgram:
             return 0.0
         _, f, c = self._prices(lam / nrm)
         D = np.where(self.excluded, 0.0, self.D)
-        return float(self.delta @ (lam / nrm) - np.sum(D * f) - np.sum(np.maximum(c, 0.0)))
+        return float(self.delta @ (lam / nrm) - np.sum(D * f) - self._drag_support(c))
 
     # ---- solve --------------------------------------------------------------------------------
     def solve(self, tol_rel=1e-5, tol_abs=1e-10, max_rounds=120, n_add=40):
@@ -717,6 +756,9 @@ class Plan:
     solve_time_s: float = 0.0
     rounds: int = 0
     dropped_small: int = 0
+    program: "_Formulation | None" = field(default=None, repr=False, compare=False)
+    """The solved program (internal): :func:`plan_deputy` ``(..., reuse=plan)`` re-solves it warm
+    for a request that differs only in ``fixed_duty`` / ``warm_columns``."""
 
     def cost_after(self, t_s: float) -> float:
         """Delta-v of the impulses at or after ``t_s``, m/s."""
@@ -781,7 +823,85 @@ def _infeasible_plan(req, message, t_solve=0.0, lower_bound=np.inf):
                 0.0, lower_bound, roe_free, miss, t_solve)
 
 
-def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_tol_m=0.01) -> Plan:
+_REQ_ARRAYS = ("chief_oe", "roe0", "roe_target", "burn_t_s", "seg_t0_s", "seg_t1_s", "w_low_mps2",
+               "w_high_mps2", "fixed_burns_t_s", "fixed_burns_dv_rtn_mps")
+
+
+@dataclass
+class _Formulation:
+    """A request's program in scaled form, every drag-eligible segment a column (fixed duty
+    cycles are column bounds), so a request that differs only in ``fixed_duty`` re-solves the
+    same LP warm (columns and basis kept)."""
+
+    req: PlanRequest
+    tb: np.ndarray  # candidate burn times used, s
+    elig: np.ndarray  # (S,) bool, segments whose two modes differ
+    w_lo: np.ndarray
+    span: np.ndarray
+    delta: np.ndarray  # scaled right-hand side with every segment at its low-drag value, m/s
+    Hcols: np.ndarray  # (n_elig, 6)
+    soft: np.ndarray | None
+    fdv: np.ndarray
+    prog: "MinFuelProgram | None" = None
+    warm: list = field(default_factory=list)
+
+    def matches(self, req: PlanRequest) -> bool:
+        r = self.req
+        if r is req:
+            return True
+        if (r.t0_s, r.deadline_s, r.dv_max_mps, r.dv_min_mps, r.stm) != \
+                (req.t0_s, req.deadline_s, req.dv_max_mps, req.dv_min_mps, req.stm):
+            return False
+        if (r.soft_weight_mps_per_m is None) != (req.soft_weight_mps_per_m is None):
+            return False
+        if r.soft_weight_mps_per_m is not None and not np.array_equal(r.soft_weight_mps_per_m,
+                                                                      req.soft_weight_mps_per_m):
+            return False
+        return all(getattr(r, k) is getattr(req, k) or np.array_equal(getattr(r, k), getattr(req, k))
+                   for k in _REQ_ARRAYS)
+
+
+def _formulate(req: PlanRequest) -> _Formulation:
+    chief = np.asarray(req.chief_oe, dtype=float)
+    a = float(chief[0])
+    na = float(mean_motion(a)) * a
+    T = float(req.deadline_s)
+    stm = STM_MODELS[req.stm]
+    # --- right-hand side: free motion, low-drag baseline, fixed impulses
+    x_free = stm(chief, T - req.t0_s) @ np.asarray(req.roe0, dtype=float)
+    s0 = np.asarray(req.seg_t0_s, dtype=float)
+    s1 = np.asarray(req.seg_t1_s, dtype=float)
+    w_lo = np.asarray(req.w_low_mps2, dtype=float)
+    w_hi = np.asarray(req.w_high_mps2, dtype=float)
+    g = drag_matrices(chief, s0, s1, T, req.t0_s, req.stm)  # (S,6)
+    span = w_hi - w_lo
+    elig = np.abs(span) > 0
+    x_known = x_free + g.T @ w_lo
+    ft = np.asarray(req.fixed_burns_t_s, dtype=float)
+    fdv = np.asarray(req.fixed_burns_dv_rtn_mps, dtype=float).reshape(-1, 3)
+    if ft.size:
+        x_known = x_known + np.einsum("jik,jk->i", impulse_matrices(chief, ft, T, req.t0_s, req.stm), fdv)
+    delta = na * (np.asarray(req.roe_target, dtype=float) - x_known)
+    # --- columns
+    tb = np.asarray(req.burn_t_s, dtype=float)
+    tb = tb[(tb >= req.t0_s - 1e-9) & (tb <= T + 1e-9)]
+    if req.dv_max_mps <= 0:
+        tb = np.zeros(0)
+    soft = None
+    if req.soft_weight_mps_per_m is not None:
+        # price per m/s-equivalent = price per metre / n (rows are n a times dimensionless ROE)
+        soft = np.asarray(req.soft_weight_mps_per_m, dtype=float) / float(mean_motion(a))
+    warm = []
+    for t_w, d_w in req.warm_columns:
+        j = int(np.argmin(np.abs(tb - t_w))) if tb.size else -1
+        if j >= 0 and abs(tb[j] - t_w) < 1e-3:
+            warm.append((j, np.asarray(d_w, dtype=float)))
+    return _Formulation(req, tb, elig, w_lo, span, delta, na * g[elig] * span[elig, None], soft, fdv,
+                        warm=warm)
+
+
+def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_tol_m=0.01,
+                reuse: Plan | None = None) -> Plan:
     """Plan one deputy: build the program, solve it, enforce the minimum impulse bit.
 
     Parameters
@@ -794,6 +914,11 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
     target_tol_m : float
         A plan whose predicted miss exceeds this (a-scaled metres, any component) is
         ``"degraded"``.
+    reuse : Plan, optional
+        A plan of a request that differs from ``req`` only in ``fixed_duty`` and
+        ``warm_columns``: its program is re-solved warm (same columns, duty bounds changed),
+        which gives the same optimum as a fresh solve at a fraction of the cost. Anything else
+        is ignored (a fresh program is built).
 
     Returns
     -------
@@ -810,67 +935,49 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
     if req.deadline_s <= req.t0_s:
         return _infeasible_plan(req, f"deadline {req.deadline_s:.1f} s is not after the solve time "
                                      f"{req.t0_s:.1f} s")
-    chief = np.asarray(req.chief_oe, dtype=float)
-    a = float(chief[0])
-    na = float(mean_motion(a)) * a
-    T = float(req.deadline_s)
-    stm = STM_MODELS[req.stm]
-    # --- right-hand side: free motion, low-drag baseline, fixed drag and impulses
-    x_free = stm(chief, T - req.t0_s) @ np.asarray(req.roe0, dtype=float)
-    s0 = np.asarray(req.seg_t0_s, dtype=float)
-    s1 = np.asarray(req.seg_t1_s, dtype=float)
-    w_lo = np.asarray(req.w_low_mps2, dtype=float)
-    w_hi = np.asarray(req.w_high_mps2, dtype=float)
-    g = drag_matrices(chief, s0, s1, T, req.t0_s, req.stm)  # (S,6)
-    span = w_hi - w_lo
-    free = np.ones(s0.size, dtype=bool)
-    fixed_vals = np.zeros(s0.size)
+    form = reuse.program if reuse is not None else None
+    if form is None or not form.matches(req):
+        form = _formulate(req)
+    a = float(req.chief_oe[0])
+    S = np.asarray(req.seg_t0_s).size
+    tb, elig, span, fdv, soft = form.tb, form.elig, form.span, form.fdv, form.soft
+    free = np.ones(S, dtype=bool)
+    fixed_vals = np.zeros(S)
     if req.fixed_duty is not None:
         fd = np.asarray(req.fixed_duty, dtype=float)
         free = np.isnan(fd)
         fixed_vals = np.where(free, 0.0, np.clip(np.nan_to_num(fd), 0.0, 1.0))
-    w_base = w_lo + fixed_vals * span
-    var = (np.abs(span) > 0) & free
-    x_known = x_free + g.T @ w_base
-    ft = np.asarray(req.fixed_burns_t_s, dtype=float)
-    fdv = np.asarray(req.fixed_burns_dv_rtn_mps, dtype=float).reshape(-1, 3)
-    if ft.size:
-        x_known = x_known + np.einsum("jik,jk->i", impulse_matrices(chief, ft, T, req.t0_s, req.stm), fdv)
-    delta = na * (np.asarray(req.roe_target, dtype=float) - x_known)
-    # --- columns
-    tb = np.asarray(req.burn_t_s, dtype=float)
-    tb = tb[(tb >= req.t0_s - 1e-9) & (tb <= T + 1e-9)]
-    if req.dv_max_mps <= 0:
-        tb = np.zeros(0)
-    G = na * impulse_matrices(chief, tb, T, req.t0_s, req.stm)
-    Hcols = na * g[var] * span[var, None]
-    soft = None
-    if req.soft_weight_mps_per_m is not None:
-        # price per m/s-equivalent = price per metre / n (rows are n a times dimensionless ROE)
-        soft = np.asarray(req.soft_weight_mps_per_m, dtype=float) / float(mean_motion(a))
-    warm = []
-    for t_w, d_w in req.warm_columns:
-        j = int(np.argmin(np.abs(tb - t_w))) if tb.size else -1
-        if j >= 0 and abs(tb[j] - t_w) < 1e-3:
-            warm.append((j, np.asarray(d_w, dtype=float)))
-    if tb.size == 0 and not np.any(var) and soft is None:
+    if tb.size == 0 and not np.any(elig & free) and soft is None:
+        w_base = form.w_lo + fixed_vals * span
+        delta = form.delta - form.Hcols.T @ fixed_vals[elig]
         if np.max(np.abs(delta)) / float(mean_motion(a)) <= target_tol_m:
-            return _finish(req, tb, np.zeros((0, 3)), var, np.zeros(0), w_base, span, 0.0,
-                           0, 0, t_start, "ok", "", target_tol_m)
+            return _finish(req, tb, np.zeros((0, 3)), np.zeros(S, dtype=bool), np.zeros(0), w_base,
+                           span, 0.0, 0, 0, t_start, "ok", "", target_tol_m)
         what = "no candidate burn before the deadline"
-        if s0.size and not np.any(np.abs(span) > 0):
+        if S and not np.any(elig):
             what += " and zero drag authority (the deputy's drag modes do not differ)"
-        elif s0.size == 0:
+        elif S == 0:
             what += " and no drag segment"
         return _infeasible_plan(req, what + "; the target differs from the free drift",
                                 time.perf_counter() - t_start)
-    prog = MinFuelProgram(G, Hcols, delta, req.dv_max_mps, soft_weight=soft, warm_columns=warm)
+    if form.prog is None:
+        G = (float(mean_motion(a)) * a) * impulse_matrices(req.chief_oe, tb, float(req.deadline_s),
+                                                           req.t0_s, req.stm)
+        form.prog = MinFuelProgram(G, form.Hcols, form.delta, req.dv_max_mps, soft_weight=soft,
+                                   warm_columns=form.warm)
+    prog = form.prog
+    prog.include_all()
+    prog.set_delta(form.delta)
+    prog.set_duty_bounds(np.where(free, 0.0, fixed_vals)[elig], np.where(free, 1.0, fixed_vals)[elig])
+    var = elig
+    w_base = form.w_lo
+    rounds0 = prog.rounds
     sol = prog.solve(tol_rel=tol_rel)
     if sol.status != "ok":
         msg = sol.message
         if sol.shortfall > 0 and np.isfinite(sol.shortfall):
             msg += f" (short by about {sol.shortfall / float(mean_motion(a)):.3g} m in a-scaled ROE)"
-        if s0.size and not np.any(np.abs(span) > 0) and tb.size == 0:
+        if S and not np.any(elig) and tb.size == 0:
             msg += "; the drag authority is zero (the deputy's drag modes do not differ)"
         return _infeasible_plan(req, msg, time.perf_counter() - t_start, sol.lower_bound)
     # --- minimum impulse bit: exclude small impulses and re-solve (their dv merges elsewhere)
@@ -882,7 +989,7 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
         # (unless the drag alone can do it)
         n_small = int(np.sum(np.linalg.norm(sol.dv, axis=1) > TINY_DV_MPS))
         prog.exclude(np.arange(tb.size))
-        trial = prog.solve(tol_rel=tol_rel) if np.any(var) or soft is not None else None
+        trial = prog.solve(tol_rel=tol_rel) if np.any(elig & free) or soft is not None else None
         dropped += n_small
         if trial is not None and trial.status == "ok":
             sol = trial
@@ -900,7 +1007,7 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
             break
         if rounded is None:
             rounded = (sol.dv.copy(), np.copy(sol.duty))
-            rounded[0][small] *= (dv_min / mag[small])[:, None]
+            rounded[0][small] *= (dv_min * _BIT_UP / mag[small])[:, None]
         if k >= 2 and not restricted:
             # the small correction keeps moving to other candidates: allow only the burns that
             # are already large (their directions and sizes re-optimised), then shrink that set
@@ -920,14 +1027,29 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
                        f"({dv_min:.3g} m/s) dropped; no plan without them reaches the target")
             break
         sol = trial
-    if rounded is not None and float(np.sum(np.linalg.norm(sol.dv, axis=1))) > \
-            float(np.sum(np.linalg.norm(rounded[0], axis=1))):
-        # moving the small corrections onto other (restricted) burns cost more than delivering
-        # each as one minimum impulse bit: fly those and report the (tiny) predicted miss
-        sol.dv, sol.duty = rounded
+    if rounded is not None:
+        # three candidates: the re-solved plan (if it hits with no small impulse), the small
+        # impulses flown as one minimum bit each with the rest re-planned around them (hits),
+        # and those raised impulses alone (a small predicted miss). A plan that hits is taken
+        # when it costs about what the rounded plan costs; a hit at a much higher price (the
+        # correction pushed onto few burns) is worse than the rounded plan's small miss.
+        mag = np.linalg.norm(sol.dv, axis=1)
+        clean = status == "ok" and not np.any((mag > TINY_DV_MPS) & (mag < dv_min))
+        hits = [(float(np.sum(mag)), (sol.dv, sol.duty))] if clean else []
         if status == "ok":
-            status, message = "degraded", (f"impulse(s) below the minimum impulse bit "
-                                           f"({dv_min:.3g} m/s) raised to it")
+            corrected = _round_and_correct(prog, form.delta, rounded, dv_min, tol_rel)
+            prog.set_delta(form.delta)
+            if corrected is not None:
+                hits.append((float(np.sum(np.linalg.norm(corrected[0], axis=1))), corrected))
+        cost_rounded = float(np.sum(np.linalg.norm(rounded[0], axis=1)))
+        best = min(hits, key=lambda h: h[0]) if hits else None
+        if best is not None and best[0] <= 1.05 * cost_rounded + 2.0 * dv_min:
+            sol.dv, sol.duty = best[1]
+        elif best is not None or float(np.sum(mag)) > cost_rounded:
+            sol.dv, sol.duty = rounded
+            if status == "ok":
+                status, message = "degraded", (f"impulse(s) below the minimum impulse bit "
+                                               f"({dv_min:.3g} m/s) raised to it")
     mag = np.linalg.norm(sol.dv, axis=1)
     bad = (mag > TINY_DV_MPS) & (mag < dv_min)
     if np.any(bad):
@@ -938,9 +1060,42 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
     sol.dv[np.linalg.norm(sol.dv, axis=1) <= TINY_DV_MPS] = 0.0
     duty_var = sol.duty
     plan = _finish(req, tb, sol.dv, var, duty_var, w_base, span,
-                   sol.lower_bound + float(np.sum(np.linalg.norm(fdv, axis=1))), sol.rounds,
+                   sol.lower_bound + float(np.sum(np.linalg.norm(fdv, axis=1))), prog.rounds - rounds0,
                    dropped, t_start, status, message, target_tol_m)
+    plan.program = form
     return plan
+
+
+def _round_and_correct(prog: MinFuelProgram, delta0, rounded, dv_min, tol_rel, passes=3):
+    """Fly every impulse below the minimum bit as exactly one minimum bit (committed) and re-plan
+    the other burns and the drag around them; repeat for new small impulses (a few passes).
+
+    Returns ``(dv (J, 3), duty)`` of a plan that reaches the target with no impulse below
+    ``dv_min``, or None. Leaves ``prog`` with changed exclusions and right-hand side (the caller
+    restores them)."""
+    dv_fixed = np.zeros_like(rounded[0])
+    mag = np.linalg.norm(rounded[0], axis=1)
+    small = (mag > TINY_DV_MPS) & (np.abs(mag - dv_min) <= 1e-12 + 1e-9 * dv_min)
+    if not np.any(small):
+        return None
+    dv_fixed[small] = rounded[0][small]
+    prog.include_all()
+    for _ in range(passes):
+        idx = np.nonzero(np.linalg.norm(dv_fixed, axis=1) > 0)[0]
+        prog.exclude(idx)
+        prog.set_delta(delta0 - np.einsum("jik,jk->i", prog.G[idx], dv_fixed[idx]))
+        trial = prog.solve(tol_rel=tol_rel)
+        if trial.status != "ok":
+            return None
+        m = np.linalg.norm(trial.dv, axis=1)
+        new_small = (m > TINY_DV_MPS) & (m < dv_min)
+        if not np.any(new_small):
+            dv = trial.dv.copy()
+            dv[m <= TINY_DV_MPS] = 0.0
+            dv[idx] = dv_fixed[idx]
+            return dv, np.copy(trial.duty)
+        dv_fixed[new_small] = trial.dv[new_small] * (dv_min * _BIT_UP / m[new_small])[:, None]
+    return None
 
 
 def predict_plan(req: PlanRequest, burn_t_s, dv_rtn_mps, duty=None, *, target_tol_m=0.01,

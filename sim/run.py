@@ -317,7 +317,8 @@ class Engine:
         rec.write_attrs("spacecraft", names=list(self.names), chief=self.chief,
                         truth_density_method=str(getattr(self.world, "density_method", "unknown")),
                         truth_sampler=("orekit_oem_writer" if getattr(self.world, "java_sampler", False)
-                                       else "python_step_handler"))
+                                       else "python_step_handler"),
+                        truth_threads=int(getattr(self.world, "threads", 1)))
         for name in self.names:
             sc = sc_cfg.get(name)
             modes = list(self.world.mode_names(name))

@@ -81,6 +81,60 @@ streaming writer as a fixed-step handler (the samples never cross into Python on
 text of each segment is parsed in numpy afterwards) whenever the segment starts on the sampling
 grid and the density is not evaluated per sample; False keeps the Python step handler."""
 
+TRUTH_THREADS_ENV = "COVEY_TRUTH_THREADS"
+"""Environment variable that sets the default of ``TruthWorld(threads=None)``: how many spacecraft
+are propagated at the same time within one :meth:`TruthWorld.advance_to` (``1``: one after the
+other). Unset: the number of CPU cores, at most the number of spacecraft."""
+
+
+def default_threads() -> int:
+    """Threads of ``TruthWorld(threads=None)``: :data:`TRUTH_THREADS_ENV` if set (a positive
+    integer), else ``os.cpu_count()``.
+
+    Raises
+    ------
+    ScenarioError
+        The variable is set to something that is not a positive integer.
+    """
+    import os
+
+    raw = os.environ.get(TRUTH_THREADS_ENV)
+    if raw is None or not raw.strip():
+        return max(1, os.cpu_count() or 1)
+    try:
+        n = int(raw)
+    except ValueError:
+        n = 0
+    if n < 1:
+        raise ScenarioError(TRUTH_THREADS_ENV, raw, "a positive integer (1: propagate the spacecraft "
+                                                    "one after the other)")
+    return n
+
+
+_POOL = None
+_POOL_SIZE = 0
+
+
+def _pool(n: int):
+    """The process's propagation thread pool (grown on demand, threads attached to the JVM as
+    daemons so they never hold the JVM's shut-down)."""
+    global _POOL, _POOL_SIZE
+    if _POOL is None or _POOL_SIZE < n:
+        from concurrent.futures import ThreadPoolExecutor
+
+        def attach():
+            from java.lang import Thread
+
+            Thread.attachAsDaemon()
+
+        old = _POOL
+        _POOL = ThreadPoolExecutor(max_workers=n, thread_name_prefix="covey-truth", initializer=attach)
+        _POOL_SIZE = n
+        if old is not None:
+            old.shutdown(wait=False)
+    return _POOL
+
+
 EARTH_ROTATION_RADPS = 7.292115146706979e-5
 """Earth rotation rate used between exact TOD -> ITRF transforms, rad/s: the rate of the Earth
 rotation angle, 2 pi x 1.00273781191135448 / 86400 s (IERS Conventions 2010, eq. 5.15 [memory]).
@@ -522,6 +576,15 @@ class TruthWorld:
         Logged density of NRLMSISE-00 (mean local solar time) computed in batch with pymsis at
         :meth:`drain_samples` (True) or by Orekit's ``getDensity`` per sample (False); None takes
         :data:`BATCHED_DENSITY`. Other models always use Orekit per sample.
+    java_sampler : bool or None
+        Sample with Orekit's OEM streaming writer (True) or the Python step handler (False); None
+        takes :data:`JAVA_SAMPLER`.
+    threads : int or None
+        Spacecraft propagated at the same time in :meth:`advance_to` (each spacecraft's
+        ``propagate()`` runs in Java on its own thread; the results do not depend on it: every
+        spacecraft has its own propagator and the shared Orekit models are immutable or use
+        Orekit's thread-safe caches). None: :func:`default_threads`. Capped at the number of
+        spacecraft.
 
     Attributes
     ----------
@@ -534,12 +597,18 @@ class TruthWorld:
     density_method : str
         How the logged density is computed: ``"pymsis"`` (batched), ``"orekit"`` (per sample) or
         ``"none"`` (no atmosphere: zeros).
+    threads : int
+        Spacecraft propagated at the same time.
     """
 
     def __init__(self, run: RunConfig, boot_info: BootInfo | None = None, batched_density: bool | None = None,
-                 java_sampler: bool | None = None):
+                 java_sampler: bool | None = None, threads: int | None = None):
         self.run = run
         self.java_sampler = JAVA_SAMPLER if java_sampler is None else bool(java_sampler)
+        n_thr = default_threads() if threads is None else threads
+        if isinstance(n_thr, bool) or not isinstance(n_thr, (int, np.integer)) or n_thr < 1:
+            raise ScenarioError("threads", threads, "a positive integer (1: one spacecraft after the other)")
+        self.threads = int(min(int(n_thr), max(1, len(run.spacecraft))))
         self.boot_info = boot_info if boot_info is not None else boot(run.orekit_data)
         if run.log_step_s <= 0:
             raise ScenarioError("log_step_s", run.log_step_s, "a positive sampling step, s")
@@ -1092,9 +1161,7 @@ class TruthWorld:
             return AdvanceResult(self.t_s, False, None)
         t0 = self.t_s
         saved = {n: self._begin(c) for n, c in self._crafts.items()}
-        reached = {}
-        for n, c in self._crafts.items():
-            reached[n] = self._run_segment(c, t1)
+        reached = self._run_segments(t1)
         t_stop, reason, who, detail = t1, None, None, ""
         for n, (tr, why) in reached.items():
             if why is not None and tr < t_stop:
@@ -1118,6 +1185,24 @@ class TruthWorld:
             self._events.append(dict(t_s=t_stop, name=who, kind=reason, detail=detail))
             return AdvanceResult(t_stop, True, reason)
         return AdvanceResult(t1, False, None)
+
+    def _run_segments(self, t1: float) -> dict[str, tuple[float, str | None]]:
+        """:meth:`_run_segment` of every spacecraft, ``self.threads`` at a time (JPype releases
+        the GIL while Java runs). The first failure, in spacecraft order, is raised after all
+        have finished."""
+        crafts = list(self._crafts.items())
+        if self.threads <= 1 or len(crafts) <= 1:
+            return {n: self._run_segment(c, t1) for n, c in crafts}
+        futures = [(n, _pool(self.threads).submit(self._run_segment, c, t1)) for n, c in crafts]
+        reached, failure = {}, None
+        for n, fut in futures:
+            try:
+                reached[n] = fut.result()
+            except BaseException as exc:  # noqa: BLE001 - re-raised below, in order
+                failure = failure or exc
+        if failure is not None:
+            raise failure
+        return reached
 
     def _commit(self, t0: float, t1: float) -> None:
         events = []

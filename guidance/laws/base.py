@@ -347,7 +347,7 @@ class PlannerLaw:
                 p2 = predict_plan(r2, np.zeros(0), np.zeros((0, 3)), realised,
                                   target_tol_m=s["target_tol_m"])
             else:
-                p2 = plan_deputy(r2, target_tol_m=s["target_tol_m"])
+                p2 = plan_deputy(r2, target_tol_m=s["target_tol_m"], reuse=plan)
             if p2.status == "infeasible":
                 break
             solve_time += p2.solve_time_s

@@ -17,15 +17,17 @@ from test_truth_physics import cubesat_bus, make_run  # same folder (pytest prep
 pytestmark = pytest.mark.orekit
 
 
-def _fly(java: bool, log_step_s: float, chunks_s, impulses, switches):
+def _fly(java: bool, log_step_s: float, chunks_s, impulses, switches, threads=None, deputies=1):
     from sim.truth import TruthWorld
 
-    run = make_run(deputies=[("dep", "nominal", [0.0, 2000.0, 0.0, 100.0, 0.0, 100.0])], bus=cubesat_bus(),
-                   duration_s=float(chunks_s[-1]), log_step_s=log_step_s)
-    w = TruthWorld(run, java_sampler=java)
-    w.set_impulses("dep", impulses)
-    w.set_mode_schedule("dep", switches)
-    out = {"chief": [], "dep": []}
+    deps = [(f"dep{k}" if k else "dep", "nominal", [0.0, 2000.0 * (k + 1), 0.0, 100.0, 0.0, 100.0 * (k + 1)])
+            for k in range(deputies)]
+    run = make_run(deputies=deps, bus=cubesat_bus(), duration_s=float(chunks_s[-1]), log_step_s=log_step_s)
+    w = TruthWorld(run, java_sampler=java, threads=threads)
+    for name, *_ in deps:
+        w.set_impulses(name, impulses)
+        w.set_mode_schedule(name, switches)
+    out = {n: [] for n in w.names}
     for t in chunks_s:
         w.advance_to(float(t))
         for n, s in w.drain_samples().items():
@@ -53,3 +55,30 @@ def test_oem_sampler_matches_the_python_sampler(chunks_s):
         np.testing.assert_allclose(a[n]["density_kgpm3"], b[n]["density_kgpm3"], rtol=1e-12)
     m = a["dep"]["mass_kg"]
     assert np.unique(np.round(m, 12)).size == 4  # initial + three impulses
+
+
+def test_spacecraft_propagated_in_parallel_give_the_same_truth_bit_for_bit():
+    # threads=3: chief and two deputies each propagate() on their own Java thread; every
+    # spacecraft has its own propagator, the shared models are immutable or use Orekit's
+    # thread-safe caches, so the samples must be the same numbers as one after the other
+    imp = [(1234.5, np.array([0.0, 0.01, 0.0])), (5400.0, np.array([0.002, 0.0, -0.003]))]
+    sw = [(700.0, "max_drag"), (7000.0, "min_drag")]
+    chunks = (5400.0, 10800.0)
+    a = _fly(True, 60.0, chunks, imp, sw, threads=1, deputies=2)
+    b = _fly(True, 60.0, chunks, imp, sw, threads=3, deputies=2)
+    assert set(a) == {"chief", "dep", "dep1"}
+    for n in a:
+        for k in a[n]:
+            np.testing.assert_array_equal(a[n][k], b[n][k], err_msg=f"{n}/{k}")
+
+
+def test_bad_thread_count_names_the_variable(monkeypatch):
+    from sim.errors import ScenarioError
+    from sim.truth import TRUTH_THREADS_ENV, default_threads
+
+    monkeypatch.setenv(TRUTH_THREADS_ENV, "two")
+    with pytest.raises(ScenarioError) as err:
+        default_threads()
+    assert TRUTH_THREADS_ENV in str(err.value) and "positive integer" in str(err.value)
+    monkeypatch.setenv(TRUTH_THREADS_ENV, "1")
+    assert default_threads() == 1
