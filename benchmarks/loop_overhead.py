@@ -30,6 +30,10 @@ switches as drag-coefficient spans, the executed impulses as Orekit ImpulseManeu
 asked for (events, integrator resets) apart from covey's harness; its end positions are compared
 with the closed loop's as a sanity check.
 
+The closed loop propagates its spacecraft on ``COVEY_TRUTH_THREADS`` threads (default: the
+cores); the target's bare reference is sequential, and a bare run on the same threads is printed
+as a further reference line.
+
 Usage: ``python benchmarks/loop_overhead.py [--days 10] [--warmup-days 3] [--no-thread]
 [--profile FILE] [--keep-log PATH]``
 """
@@ -160,6 +164,21 @@ def bare_seconds(cfg) -> tuple[float, list[float]]:
         each.append(time.perf_counter() - t1)
     BARE_CPU.append(time.process_time() - c0)
     return time.perf_counter() - t0, each
+
+
+def bare_threaded_seconds(cfg, threads: int) -> float:
+    """The bare reference on ``threads`` threads (the closed loop's truth threads): a reference
+    line, not the target's definition (one propagate() per spacecraft, one after the other)."""
+    from sim.truth import _pool
+
+    w = fresh_world(cfg)
+    T = float(cfg.duration_s)
+    props = [w.bare_propagator(name)[0] for name in w._crafts]
+    t0 = time.perf_counter()
+    futures = [_pool(threads).submit(p.propagate, w.forces.epoch.shiftedBy(T)) for p in props]
+    for f in futures:
+        f.result()
+    return time.perf_counter() - t0
 
 
 WORLDS: list = []
@@ -304,6 +323,8 @@ def main() -> None:
     flown = WORLDS[-1]  # the closed loop's truth
     bare_after, each_after = bare_seconds(cfg)
     replay = replay_seconds(cfg, flown, out)
+    threads = int(getattr(flown, "threads", 1))
+    bare_par = bare_threaded_seconds(cfg, threads) if threads > 1 else None
     bare = 0.5 * (bare_before + bare_after)
     bare_cpu = 0.5 * (BARE_CPU[-2] + BARE_CPU[-1])
 
@@ -331,6 +352,11 @@ def main() -> None:
           f"{', '.join(f'{g:.1f}' for g in REPLAY_GAP_M)} m")
     print(f"  process CPU time, closed loop / bare        : {cpu:.2f} / {bare_cpu:.2f} s = {cpu / bare_cpu:.3f} "
           f"(all threads, JVM included)")
+    print(f"  truth threads in the closed loop            : {threads} (COVEY_TRUTH_THREADS; the bare "
+          f"reference above is one propagate() after the other)")
+    if bare_par is not None:
+        print(f"  reference: bare on {threads} threads             : {bare_par:.2f} s; closed loop / "
+              f"that {wall / bare_par:.3f}")
     print("where the closed-loop wall time goes (s, share, calls; [worker] = on the log-writer "
           "thread, overlapped with the main thread):")
     main_keys = [k for k in timers if not k.startswith("  ") and not k.startswith("[worker]")]

@@ -158,6 +158,7 @@ class ClosedLoopEngine(Engine):
                                  {n: (b.thruster.propellant_kg if b.thruster else 0.0)
                                   for n, b in buses.items()})
         self.plans: dict[str, SpacecraftCommand] = {}
+        self.commanded: set[str] = set(self.names)  # spacecraft the law answered for last cycle
         self.cycle = 0
         self.belief = None
         self._setup_law()
@@ -189,16 +190,29 @@ class ClosedLoopEngine(Engine):
         truth = {n: (s.r_eci_m, s.v_eci_mps, s.mass_kg) for n, s in states.items()}
         nav, nav_rec = self.nav.estimate(t_s, truth)
         self._log_nav(t_s, nav_rec)
+        start_early = getattr(self.world, "start_early", None)
+        if start_early is not None:
+            # spacecraft the law did not command last cycle and with nothing planned in this
+            # interval (typically the chief) start propagating while the law thinks; if the law
+            # does change one of them, the truth discards that early segment (same result)
+            start_early(t_next_s, [n for n in self.names if n not in self.commanded
+                                   and not self._items_in(n, t_s, t_next_s)])
         wall0 = time.perf_counter()
         try:
-            out = self.law.step(t_s, nav)
-        except Exception as exc:  # noqa: BLE001
-            # one-line reason; the law's traceback reaches /meta/traceback through the chain
-            raise GuidanceFailure(self.law_name, t_s,
-                                  f"step() raised {type(exc).__name__}: "
-                                  + " ".join(str(exc).split())) from exc
-        wall = time.perf_counter() - wall0
-        cmds = check_output(out, t_s, self.modes, self.law_name)
+            try:
+                out = self.law.step(t_s, nav)
+            except Exception as exc:  # noqa: BLE001
+                # one-line reason; the law's traceback reaches /meta/traceback through the chain
+                raise GuidanceFailure(self.law_name, t_s,
+                                      f"step() raised {type(exc).__name__}: "
+                                      + " ".join(str(exc).split())) from exc
+            wall = time.perf_counter() - wall0
+            cmds = check_output(out, t_s, self.modes, self.law_name)
+        except BaseException:
+            if start_early is not None:
+                self.world.cancel_early()
+            raise
+        self.commanded = set(cmds)
         self.plans.update(cmds)
         self._log_diagnostics(t_s, out, wall)
         for name in self.names:
@@ -221,6 +235,14 @@ class ClosedLoopEngine(Engine):
                     area_factor_fn=lambda m, t, att=att: att.get((round(float(t), 6), m), 1.0))
             self._log_commands(t_s, executed, realised)
         self.cycle += 1
+
+    def _items_in(self, name: str, t_s: float, t_next_s: float) -> bool:
+        """Whether the kept plan of ``name`` has a burn or a switch in ``[t_s, t_next_s)``."""
+        plan = self.plans.get(name)
+        if plan is None:
+            return False
+        return any(t_s - _EPS_T <= x.t_s < t_next_s - _EPS_T
+                   for x in (*plan.impulses, *plan.mode_switches))
 
     # -- logging -----------------------------------------------------------------------------
     def _log_nav(self, t_s: float, rec: dict) -> None:

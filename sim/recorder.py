@@ -28,7 +28,7 @@ from .errors import LogFormatError
 __all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "RunRecorder", "RunLog", "read_log", "units_for"]
 
 SCHEMA_NAME = "covey.runlog"
-SCHEMA_VERSION = "1.1"
+SCHEMA_VERSION = "1.2"
 """Major.minor. A reader accepts any file of the same major version."""
 
 _COMPRESSION = dict(compression="gzip", compression_opts=4, shuffle=True)

@@ -764,6 +764,28 @@ def _spacecraft(t: _Table, buses: Mapping[str, BusConfig], *, is_chief: bool, du
                             target_roe_m=target, deadline_s=deadline)
 
 
+def law_settings(law: str, settings: Mapping[str, Any]) -> dict:
+    """The settings the flown law gets from ``[guidance.settings]``.
+
+    A sub-table whose key is a built-in law name (``[guidance.settings.hybrid_resolve]``) or a
+    user law's import path (a key with ``":"``) holds settings for that law only: the flown law's
+    table is merged over the common keys, the other laws' tables are dropped. So one file can be
+    flown with every law (``--set guidance.law=...``) and still tune each. Any other value passes
+    through unchanged (the law checks it).
+    """
+    from guidance.registry import LAWS
+
+    common, own = {}, {}
+    for k, v in settings.items():
+        if isinstance(v, dict) and (k in LAWS or ":" in str(k)):
+            if k == law:
+                own = dict(v)
+        else:
+            common[k] = v
+    common.update(own)
+    return common
+
+
 def _guidance(t: _Table | None) -> GuidanceConfig:
     if t is None:
         return GuidanceConfig()
@@ -775,7 +797,7 @@ def _guidance(t: _Table | None) -> GuidanceConfig:
     if t.has("settings"):
         if not isinstance(t.d["settings"], dict):
             raise t.err("settings", t.d["settings"], "must be a table ([guidance.settings])")
-        settings = dict(t.d["settings"])
+        settings = law_settings(law, t.d["settings"])
     return GuidanceConfig(law=law, cycle_s=t.num("cycle_s", 5400.0, lo=1.0, hi=30 * 86400.0),
                           settings=settings)
 

@@ -609,6 +609,7 @@ class TruthWorld:
         if isinstance(n_thr, bool) or not isinstance(n_thr, (int, np.integer)) or n_thr < 1:
             raise ScenarioError("threads", threads, "a positive integer (1: one spacecraft after the other)")
         self.threads = int(min(int(n_thr), max(1, len(run.spacecraft))))
+        self._early: dict | None = None  # segments begun by start_early
         self.boot_info = boot_info if boot_info is not None else boot(run.orekit_data)
         if run.log_step_s <= 0:
             raise ScenarioError("log_step_s", run.log_step_s, "a positive sampling step, s")
@@ -800,6 +801,7 @@ class TruthWorld:
             Unknown spacecraft or mode, a switch before ``t_s``, a negative or non-finite factor.
         """
         c = self._craft(name)
+        self._cancel_early(name)
         new = sorted(((float(t), str(m)) for t, m in switches), key=lambda x: x[0])
         for t, m in new:
             if m not in c.mode_index:
@@ -861,7 +863,14 @@ class TruthWorld:
             if not math.isfinite(t) or t < self.t_s - _EPS_T:
                 raise ScenarioError(f"{name}.impulses", t, f"impulse times >= current time {self.t_s} s")
             items.append((max(t, self.t_s), dv.copy()))
-        c.impulses = [imp for imp in c.impulses if imp[0] < self.t_s - _EPS_T] + sorted(items, key=lambda x: x[0])
+        new = [imp for imp in c.impulses if imp[0] < self.t_s - _EPS_T] + sorted(items, key=lambda x: x[0])
+        if self._early is not None and name in self._early["items"]:
+            same = len(new) == len(c.impulses) and all(
+                a[0] == b[0] and np.array_equal(a[1], b[1]) for a, b in zip(new, c.impulses))
+            if same:
+                return
+            self._cancel_early(name)
+        c.impulses = new
 
     # ---------------------------------------------------------------------------------
     # propagation
@@ -1160,8 +1169,14 @@ class TruthWorld:
         if t1 <= self.t_s + _EPS_T:
             return AdvanceResult(self.t_s, False, None)
         t0 = self.t_s
-        saved = {n: self._begin(c) for n, c in self._crafts.items()}
-        reached = self._run_segments(t1)
+        early = self._early
+        if early is not None and abs(early["t1"] - t1) > _EPS_T:
+            self.cancel_early()
+            early = None
+        self._early = None
+        begun = early["items"] if early is not None else {}
+        saved = {n: (begun[n][0] if n in begun else self._begin(c)) for n, c in self._crafts.items()}
+        reached = self._run_segments(t1, {n: fut for n, (_, fut) in begun.items()})
         t_stop, reason, who, detail = t1, None, None, ""
         for n, (tr, why) in reached.items():
             if why is not None and tr < t_stop:
@@ -1186,14 +1201,59 @@ class TruthWorld:
             return AdvanceResult(t_stop, True, reason)
         return AdvanceResult(t1, False, None)
 
-    def _run_segments(self, t1: float) -> dict[str, tuple[float, str | None]]:
+    def start_early(self, t_s: float, names: Sequence[str]) -> list[str]:
+        """Begin the segments of ``names`` to ``t_s`` now, on the propagation threads, while the
+        caller does other work (the closed loop: guidance, for spacecraft it is not expected to
+        command). :meth:`advance_to` ``(t_s)`` then uses them. Until then the caller may change
+        any other spacecraft; a :meth:`set_mode_schedule` of one of ``names``, or a
+        :meth:`set_impulses` that changes its impulses, first waits for and discards its early
+        segment (so the truth never depends on this call: it only saves time). Needs
+        ``threads > 1``; returns the names begun (none when it cannot)."""
+        if self.threads <= 1 or self._stopped is not None or self._early is not None:
+            return []
+        t1 = float(t_s)
+        if not math.isfinite(t1) or t1 <= self.t_s + _EPS_T:
+            return []
+        items = {}
+        for n in names:
+            if n in self._crafts and n not in items:
+                c = self._crafts[n]
+                saved = self._begin(c)
+                items[n] = (saved, _pool(self.threads).submit(self._run_segment, c, t1))
+        if items:
+            self._early = {"t1": t1, "items": items}
+        return list(items)
+
+    def _cancel_early(self, name: str) -> None:
+        e = self._early
+        if e is None or name not in e["items"]:
+            return
+        saved, fut = e["items"].pop(name)
+        try:
+            fut.result()
+        except BaseException:  # noqa: BLE001 - discarded: the segment is run again
+            pass
+        self._restore(self._crafts[name], saved)
+        if not e["items"]:
+            self._early = None
+
+    def cancel_early(self) -> None:
+        """Wait for and discard every segment begun by :meth:`start_early`."""
+        while self._early is not None:
+            self._cancel_early(next(iter(self._early["items"])))
+
+    def _run_segments(self, t1: float, begun: Mapping[str, object] | None = None
+                      ) -> dict[str, tuple[float, str | None]]:
         """:meth:`_run_segment` of every spacecraft, ``self.threads`` at a time (JPype releases
-        the GIL while Java runs). The first failure, in spacecraft order, is raised after all
-        have finished."""
+        the GIL while Java runs); ``begun``: futures of segments already started
+        (:meth:`start_early`). The first failure, in spacecraft order, is raised after all have
+        finished."""
         crafts = list(self._crafts.items())
-        if self.threads <= 1 or len(crafts) <= 1:
+        begun = dict(begun or {})
+        if not begun and (self.threads <= 1 or len(crafts) <= 1):
             return {n: self._run_segment(c, t1) for n, c in crafts}
-        futures = [(n, _pool(self.threads).submit(self._run_segment, c, t1)) for n, c in crafts]
+        futures = [(n, begun[n] if n in begun else _pool(self.threads).submit(self._run_segment, c, t1))
+                   for n, c in crafts]
         reached, failure = {}, None
         for n, fut in futures:
             try:

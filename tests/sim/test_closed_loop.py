@@ -751,6 +751,9 @@ def test_truth_flies_the_logged_switches_and_burns(jvm_runs):
     # the log says how its truth samples and density were made (defaults: DEVELOPERS.md truth)
     assert log.attrs("spacecraft")["truth_sampler"] == "orekit_oem_writer"
     assert log.attrs("spacecraft")["truth_density_method"] == "pymsis"
+    from sim.truth import default_threads
+
+    assert log.attrs("spacecraft")["truth_threads"] == min(default_threads(), len(cfg.spacecraft))
     g = "commands/switches"
     sw_name = np.array(_str(log.get(f"{g}/name")))
     sw_mode = np.array(_str(log.get(f"{g}/mode")))

@@ -372,3 +372,27 @@ def test_solar_activity_file_source(tmp_path):
     with pytest.raises(ScenarioError) as ei:
         load_scenario(sc)
     assert ei.value.key == "environment.solar_activity.path"
+
+
+def test_per_law_settings_tables_reach_only_their_law():
+    # [guidance.settings.<law>] is read only when that law is flown, merged over the common keys;
+    # the other laws' tables are dropped, other tables pass through to the law unchanged
+    from sim.scenario import law_settings
+
+    raw = {"chief_mode": "nominal", "weak_drag_margin": 0.5,
+           "hybrid_resolve": {"resolve_mode": "drag_only", "weak_drag_margin": 0.3},
+           "my_pkg.laws:Mine": {"gain": 2.0}, "lookup": {"a": 1}}
+    assert law_settings("hybrid_resolve", raw) == {"chief_mode": "nominal", "weak_drag_margin": 0.3,
+                                                   "resolve_mode": "drag_only", "lookup": {"a": 1}}
+    assert law_settings("hybrid_single", raw) == {"chief_mode": "nominal", "weak_drag_margin": 0.5,
+                                                  "lookup": {"a": 1}}
+    assert law_settings("my_pkg.laws:Mine", raw)["gain"] == 2.0
+
+
+def test_spread_file_flies_every_law_with_its_own_settings(repo_root):
+    path = repo_root / "scenarios" / "spread_four.toml"
+    res = load_scenario(path)
+    assert res.guidance.law == "hybrid_resolve" and res.guidance.settings["resolve_mode"] == "drag_only"
+    for law in ("hybrid_single", "propulsion_only"):
+        cfg = load_scenario(path, {"guidance.law": law})
+        assert "resolve_mode" not in cfg.guidance.settings and "hybrid_resolve" not in cfg.guidance.settings

@@ -82,3 +82,40 @@ def test_bad_thread_count_names_the_variable(monkeypatch):
     assert TRUTH_THREADS_ENV in str(err.value) and "positive integer" in str(err.value)
     monkeypatch.setenv(TRUTH_THREADS_ENV, "1")
     assert default_threads() == 1
+
+
+def test_early_segments_give_the_same_truth_and_are_discarded_when_changed():
+    # start_early begins the chief's segment while the caller "thinks"; advance_to uses it. A
+    # change of that spacecraft's impulses or schedule in between discards it (run again): the
+    # truth never depends on the early start
+    from sim.truth import TruthWorld
+
+    run = make_run(deputies=[("dep", "nominal", [0.0, 2000.0, 0.0, 100.0, 0.0, 100.0])], bus=cubesat_bus(),
+                   duration_s=10800.0, log_step_s=60.0)
+    imp = [(1234.5, np.array([0.0, 0.01, 0.0]))]
+
+    def fly(early: bool, change: bool):
+        w = TruthWorld(run, threads=2)
+        w.set_impulses("dep", imp)
+        w.advance_to(5400.0)
+        if early:
+            assert w.start_early(10800.0, ["chief"]) == ["chief"]
+        w.set_impulses("dep", [(6000.0, np.array([0.0, -0.01, 0.0]))])
+        w.set_impulses("chief", [])  # unchanged: the early segment stays
+        if early:
+            assert w._early is not None
+        if change:
+            w.set_impulses("chief", [(7000.0, np.array([0.0, 0.0, 0.002]))])
+            w.set_mode_schedule("chief", [(8000.0, "max_drag")])
+        w.advance_to(10800.0)
+        return w.drain_samples(), w.drain_executed_impulses()
+
+    for change in (False, True):
+        ref, ref_imp = fly(False, change)
+        got, got_imp = fly(True, change)
+        assert len(got_imp) == len(ref_imp) == (3 if change else 2)
+        for n in ref:
+            for k in ref[n]:
+                np.testing.assert_array_equal(ref[n][k], got[n][k], err_msg=f"change={change} {n}/{k}")
+    w = TruthWorld(run, threads=1)
+    assert w.start_early(5400.0, ["chief"]) == []  # one thread: nothing to overlap
