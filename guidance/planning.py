@@ -33,8 +33,9 @@ warm-started from the previous basis after every change) over the drag columns, 
 directions found so far and six pairs of artificial columns; its row duals ``lambda`` price every
 candidate burn at once (``||G_j^T lambda||`` for all ``j``, one numpy pass), and each burn whose best
 direction ``G_j^T lambda / ||G_j^T lambda||`` has a negative reduced cost enters with that exact
-Euclidean direction (at most ``n_add`` per round, local minima in time first). A burn that holds
-several directions gets a capacity row ``sum mu <= dv_max`` so that its resulting impulse
+Euclidean direction (at most ``n_add`` per round, local minima in time first). A burn whose
+directions together exceed its maximum in an LP solution gets a capacity row ``sum mu <= dv_max``
+(added lazily, then the LP is re-run) so that its resulting impulse
 ``sum mu c`` never exceeds the per-burn maximum. The restricted LP's cost is an upper bound and
 ``q(lambda)`` (weak duality) a certified lower bound on the optimum; rounds stop when the gap is
 below ``tol_rel``. No polygonal approximation of the norm is involved: the only approximation is
@@ -434,18 +435,8 @@ class MinFuelProgram:
 
     # ---- LP bookkeeping ---------------------------------------------------------------------
     def _add_columns(self, cols):
-        h, inf = self._h, self._inf
+        h = self._h
         js = np.array([j for j, _ in cols])
-        new_count = {}
-        for j in js:
-            new_count[j] = new_count.get(j, 0) + 1
-        for j, k in new_count.items():
-            have = self._cols_of.get(j, [])
-            if self._cap_row[j] < 0 and len(have) + k > 1:
-                idx = np.array(have, dtype=np.int32)
-                h.addRow(-inf, float(self.D[j]), idx.size, idx, np.ones(idx.size))
-                self._cap_row[j] = self._nrow
-                self._nrow += 1
         dirs = np.array([d for _, d in cols])
         vals = np.einsum("mik,mk->mi", self.G[js], dirs)
         # column k: rows 0..5 with vals[k], then its capacity row (if any) with 1
@@ -470,6 +461,23 @@ class MinFuelProgram:
             self._col_burn.append(j)
             self._col_dir.append(d)
             self._cols_of.setdefault(j, []).append(base + k)
+
+    def _add_capacity_rows(self, x) -> int:
+        """Capacity rows ``sum mu <= dv_max`` for the burns whose columns together exceed their
+        maximum in the LP solution ``x`` (added lazily: most burns never need one, and every row
+        makes each LP run dearer). Returns how many were added."""
+        if not self._col_burn:
+            return 0
+        burn = np.asarray(self._col_burn)
+        xb = np.clip(x[self._first_burn_col:self._first_burn_col + burn.size], 0.0, None)
+        total = np.bincount(burn, weights=xb, minlength=self.J)
+        over = np.nonzero((total > self.D * (1.0 + 1e-9) + 1e-15) & (self._cap_row < 0))[0]
+        for j in over:
+            idx = np.array(self._cols_of[int(j)], dtype=np.int32)
+            self._h.addRow(-self._inf, float(self.D[j]), idx.size, idx, np.ones(idx.size))
+            self._cap_row[j] = self._nrow
+            self._nrow += 1
+        return int(over.size)
 
     def set_duty_bounds(self, lo, hi):
         """Bounds of the drag duty columns (shape (S,) each, within [0, 1]); equal bounds fix a
@@ -568,6 +576,8 @@ class MinFuelProgram:
             self.rounds += 1
             sol = self._h.getSolution()
             x = np.asarray(sol.col_value)
+            if self._add_capacity_rows(x):
+                continue  # a burn's directions together exceeded its maximum: re-run with the row
             y = np.asarray(sol.row_dual)
             lam = y[:6].copy()
             A, f, c = self._prices(lam)
@@ -604,6 +614,13 @@ class MinFuelProgram:
             self._add_columns([(int(j), A[j] / f[j]) for j in sel])
         sol = self._h.getSolution()
         x = np.asarray(sol.col_value)
+        for _ in range(5):  # the loop may end right after adding capacity rows: honour them
+            if not self._add_capacity_rows(x):
+                break
+            self._h.run()
+            self.rounds += 1
+            sol = self._h.getSolution()
+            x = np.asarray(sol.col_value)
         dv, cost = self._primal(x)
         duty = np.clip(x[12:12 + S], 0.0, 1.0)
         slack = x[:6] - x[6:12]
@@ -901,7 +918,7 @@ def _formulate(req: PlanRequest) -> _Formulation:
 
 
 def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_tol_m=0.01,
-                reuse: Plan | None = None) -> Plan:
+                reuse: Plan | None = None, min_bit: bool = True) -> Plan:
     """Plan one deputy: build the program, solve it, enforce the minimum impulse bit.
 
     Parameters
@@ -919,6 +936,9 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
         ``warm_columns``: its program is re-solved warm (same columns, duty bounds changed),
         which gives the same optimum as a fresh solve at a fraction of the cost. Anything else
         is ignored (a fresh program is built).
+    min_bit : bool
+        Enforce the minimum impulse bit (default). False skips it: for intermediate plans whose
+        impulses are re-planned anyway (the duty realisation rounds of the hybrid laws).
 
     Returns
     -------
@@ -983,7 +1003,7 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
     # --- minimum impulse bit: exclude small impulses and re-solve (their dv merges elsewhere)
     dropped = 0
     status, message = "ok", ""
-    dv_min = max(float(req.dv_min_mps), 0.0)
+    dv_min = max(float(req.dv_min_mps), 0.0) if min_bit else 0.0
     if tb.size and TINY_DV_MPS < sol.cost < dv_min:
         # even the optimum is below one minimum impulse bit: no deliverable impulse can help
         # (unless the drag alone can do it)

@@ -295,7 +295,10 @@ class PlannerLaw:
         if req is None:
             return
         req = self._request_hook(name, st, req, t_s)
-        plan = plan_deputy(req, target_tol_m=s["target_tol_m"])
+        realise = bool(self.PLAN_DRAG and req.fixed_duty is None and req.seg_t0_s.size)
+        # with drag to realise, this plan only proposes duty cycles: the minimum impulse bit is
+        # enforced on the final plan of _realise (whose impulses are re-planned anyway)
+        plan = plan_deputy(req, target_tol_m=s["target_tol_m"], min_bit=not realise)
         if plan.status == "infeasible":
             if st.plan is not None and st.plan.status != "infeasible":
                 st.status = "degraded"
@@ -310,7 +313,7 @@ class PlannerLaw:
             return
         current = st.mode_at(t_s)
         slew = float(st.caps.slew_time_s)
-        if self.PLAN_DRAG and req.fixed_duty is None and req.seg_t0_s.size:
+        if realise:
             plan, sw = self._realise(req, plan, t_s, current, slew)
         else:
             sw = [] if current == s["hold_mode"] else [(t_s, s["hold_mode"])]
@@ -325,43 +328,49 @@ class PlannerLaw:
 
         Realisation removes spells shorter than the dwell (or slew) time. The segments it changed
         are fixed to their realised duty and the rest re-planned (free drag absorbs the change at
-        no propulsive cost), a few rounds; whatever still differs is then fixed everywhere and
-        only the impulses are re-planned, so the plan hits the target in the planner's model.
+        no propulsive cost), a few rounds, each a warm re-solve of the same LP and without the
+        minimum impulse bit (these plans only propose duty cycles). Then the whole realised
+        schedule is fixed and only the impulses are re-planned, with the minimum impulse bit, so
+        the plan hits the target in the planner's model with the schedule that is flown.
         """
         s = self.settings
         kw = dict(slew_s=slew, min_dwell_s=s["min_dwell_s"], high_mode=HIGH_DRAG_MODE,
                   low_mode=LOW_DRAG_MODE, current_mode=current, end_mode=s["hold_mode"])
         fixed = np.full(req.seg_t0_s.size, np.nan)
         solve_time = plan.solve_time_s
-        for k in range(rounds + 1):
+
+        def warm_of(p):
+            return tuple((t, d / np.linalg.norm(d)) for t, d in zip(p.burn_t_s, p.dv_rtn_mps)
+                         if np.linalg.norm(d) > 0)
+
+        for _ in range(rounds):
             sw, realised = realise_duty_schedule(req.seg_t0_s, req.seg_t1_s, plan.duty, t_s, **kw)
             changed = np.abs(realised - plan.duty) > 1e-9
             if not np.any(changed):
-                return plan, sw
+                break
             fixed[changed] = realised[changed]
-            last = k == rounds
-            warm = tuple((t, d / np.linalg.norm(d)) for t, d in zip(plan.burn_t_s, plan.dv_rtn_mps)
-                         if np.linalg.norm(d) > 0)
-            r2 = replace(req, fixed_duty=realised if last else fixed.copy(), warm_columns=warm)
-            if last and (r2.soft_weight_mps_per_m is not None or r2.burn_t_s.size == 0):
-                p2 = predict_plan(r2, np.zeros(0), np.zeros((0, 3)), realised,
-                                  target_tol_m=s["target_tol_m"])
-            else:
-                p2 = plan_deputy(r2, target_tol_m=s["target_tol_m"], reuse=plan)
+            p2 = plan_deputy(replace(req, fixed_duty=fixed.copy(), warm_columns=warm_of(plan)),
+                             target_tol_m=s["target_tol_m"], reuse=plan, min_bit=False)
             if p2.status == "infeasible":
                 break
             solve_time += p2.solve_time_s
-            p2.solve_time_s = solve_time
-            if last:
-                return p2, sw
             plan = p2
         sw, realised = realise_duty_schedule(req.seg_t0_s, req.seg_t1_s, plan.duty, t_s, **kw)
-        p3 = predict_plan(replace(req, fixed_duty=realised), plan.burn_t_s, plan.dv_rtn_mps,
-                          realised, target_tol_m=s["target_tol_m"])
-        p3.solve_time_s = solve_time
-        if p3.status == "ok" and plan.status != "ok":
-            p3.status, p3.message = plan.status, plan.message
-        return p3, sw
+        r2 = replace(req, fixed_duty=realised, warm_columns=warm_of(plan))
+        if r2.soft_weight_mps_per_m is not None or r2.burn_t_s.size == 0:
+            final = predict_plan(r2, np.zeros(0), np.zeros((0, 3)), realised, target_tol_m=s["target_tol_m"])
+        else:
+            final = plan_deputy(r2, target_tol_m=s["target_tol_m"], reuse=plan)
+        if final.status == "infeasible":
+            # no impulse plan for the realised schedule: fly the last plan's impulses with it and
+            # report the predicted miss
+            bt, bdv = _beyond_fixed(plan, req)
+            final = predict_plan(r2, bt, bdv, realised, target_tol_m=s["target_tol_m"])
+            if final.status == "ok" and plan.status != "ok":
+                final.status, final.message = plan.status, plan.message
+        solve_time += final.solve_time_s
+        final.solve_time_s = solve_time
+        return final, sw
 
     def _base_request(self, name, st: DeputyState, t_s, nav, state) -> PlanRequest | None:
         s = self.settings
@@ -461,6 +470,20 @@ class PlannerLaw:
         r = plan.request
         x = STM_MODELS[r.stm](r.chief_oe, np.maximum(times - r.t0_s, 0.0)).reshape(-1, 6, 6) @ r.roe0
         return float(r.chief_oe[0]) * x
+
+
+def _beyond_fixed(plan: Plan, req: PlanRequest) -> tuple[np.ndarray, np.ndarray]:
+    """The plan's impulses other than the request's fixed ones (a plan lists both), as
+    ``(t_s (K,), dv_rtn_mps (K, 3))``: what :func:`predict_plan` takes besides the fixed ones."""
+    bt = np.asarray(plan.burn_t_s, dtype=float)
+    bdv = np.asarray(plan.dv_rtn_mps, dtype=float).reshape(-1, 3)
+    keep = np.ones(bt.size, dtype=bool)
+    for t, d in zip(np.asarray(req.fixed_burns_t_s, dtype=float),
+                    np.asarray(req.fixed_burns_dv_rtn_mps, dtype=float).reshape(-1, 3)):
+        hit = np.nonzero(keep & (np.abs(bt - t) <= 1e-9) & np.all(np.abs(bdv - d) <= 1e-15, axis=1))[0]
+        if hit.size:
+            keep[hit[0]] = False
+    return bt[keep], bdv[keep]
 
 
 def settings_table(cls) -> str:
