@@ -1020,6 +1020,7 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
                        f"bit ({dv_min:.3g} m/s): no impulse planned")
     restricted = False
     rounded = None  # the first solution with small impulses, each raised to one minimum bit
+    raised = None  # indices of those raised impulses
     for k in range(max_min_bit_rounds):
         mag = np.linalg.norm(sol.dv, axis=1)
         small = np.nonzero((mag > TINY_DV_MPS) & (mag < dv_min))[0]
@@ -1028,6 +1029,7 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
         if rounded is None:
             rounded = (sol.dv.copy(), np.copy(sol.duty))
             rounded[0][small] *= (dv_min * _BIT_UP / mag[small])[:, None]
+            raised = small.copy()
         if k >= 2 and not restricted:
             # the small correction keeps moving to other candidates: allow only the burns that
             # are already large (their directions and sizes re-optimised), then shrink that set
@@ -1057,7 +1059,7 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
         clean = status == "ok" and not np.any((mag > TINY_DV_MPS) & (mag < dv_min))
         hits = [(float(np.sum(mag)), (sol.dv, sol.duty))] if clean else []
         if status == "ok":
-            corrected = _round_and_correct(prog, form.delta, rounded, dv_min, tol_rel)
+            corrected = _round_and_correct(prog, form.delta, rounded[0], raised, dv_min, tol_rel)
             prog.set_delta(form.delta)
             if corrected is not None:
                 hits.append((float(np.sum(np.linalg.norm(corrected[0], axis=1))), corrected))
@@ -1086,19 +1088,18 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
     return plan
 
 
-def _round_and_correct(prog: MinFuelProgram, delta0, rounded, dv_min, tol_rel, passes=3):
+def _round_and_correct(prog: MinFuelProgram, delta0, dv_rounded, raised, dv_min, tol_rel, passes=3):
     """Fly every impulse below the minimum bit as exactly one minimum bit (committed) and re-plan
     the other burns and the drag around them; repeat for new small impulses (a few passes).
 
-    Returns ``(dv (J, 3), duty)`` of a plan that reaches the target with no impulse below
-    ``dv_min``, or None. Leaves ``prog`` with changed exclusions and right-hand side (the caller
-    restores them)."""
-    dv_fixed = np.zeros_like(rounded[0])
-    mag = np.linalg.norm(rounded[0], axis=1)
-    small = (mag > TINY_DV_MPS) & (np.abs(mag - dv_min) <= 1e-12 + 1e-9 * dv_min)
-    if not np.any(small):
+    ``dv_rounded`` (J, 3): the solution with the impulses ``raised`` (indices) already raised to
+    one bit. Returns ``(dv (J, 3), duty)`` of a plan that reaches the target with no impulse
+    below ``dv_min``, or None. Leaves ``prog`` with changed exclusions and right-hand side (the
+    caller restores them)."""
+    if raised is None or len(raised) == 0:
         return None
-    dv_fixed[small] = rounded[0][small]
+    dv_fixed = np.zeros_like(dv_rounded)
+    dv_fixed[raised] = dv_rounded[raised]
     prog.include_all()
     for _ in range(passes):
         idx = np.nonzero(np.linalg.norm(dv_fixed, axis=1) > 0)[0]
