@@ -111,15 +111,15 @@ def default_threads() -> int:
     return n
 
 
-_POOL = None
-_POOL_SIZE = 0
+_POOLS: dict = {}
 
 
 def _pool(n: int):
-    """The process's propagation thread pool (grown on demand, threads attached to the JVM as
-    daemons so they never hold the JVM's shut-down)."""
-    global _POOL, _POOL_SIZE
-    if _POOL is None or _POOL_SIZE < n:
+    """The process's propagation thread pool of ``n`` threads (one per size, made on first use;
+    threads attached to the JVM as daemons so they never hold the JVM's shut-down), so a world
+    never runs more spacecraft at once than its own ``threads``."""
+    pool = _POOLS.get(n)
+    if pool is None:
         from concurrent.futures import ThreadPoolExecutor
 
         def attach():
@@ -127,12 +127,9 @@ def _pool(n: int):
 
             Thread.attachAsDaemon()
 
-        old = _POOL
-        _POOL = ThreadPoolExecutor(max_workers=n, thread_name_prefix="covey-truth", initializer=attach)
-        _POOL_SIZE = n
-        if old is not None:
-            old.shutdown(wait=False)
-    return _POOL
+        pool = _POOLS[n] = ThreadPoolExecutor(max_workers=n, thread_name_prefix="covey-truth",
+                                              initializer=attach)
+    return pool
 
 
 EARTH_ROTATION_RADPS = 7.292115146706979e-5
