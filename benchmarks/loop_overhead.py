@@ -35,7 +35,11 @@ cores); the target's bare reference is sequential, and a bare run on the same th
 as a further reference line.
 
 Usage: ``python benchmarks/loop_overhead.py [--days 10] [--warmup-days 3] [--no-thread]
-[--profile FILE] [--keep-log PATH]``
+[--no-early-start] [--profile FILE] [--keep-log PATH]``
+
+``--no-early-start`` turns off :meth:`sim.truth.TruthWorld.start_early` (the chief's segment run
+while the law works) to price it: it saves the chief's propagation from the critical path but
+slows the law's Python while a Java propagation runs beside it (DEVELOPERS.md, closed-loop cost).
 """
 
 from __future__ import annotations
@@ -292,7 +296,13 @@ def main() -> None:
     ap.add_argument("--keep-log", default=None, help="keep the closed-loop run log at this path")
     ap.add_argument("--no-thread", action="store_true",
                     help="write the log on the main thread (sim.run.LOG_THREAD = False)")
+    ap.add_argument("--no-early-start", action="store_true",
+                    help="no early start of the chief's segments (TruthWorld.start_early off)")
     args = ap.parse_args()
+    if args.no_early_start:
+        import sim.truth
+
+        sim.truth.TruthWorld.start_early = lambda self, t_s, names: []
     if args.no_thread:
         import sim.run
 

@@ -94,6 +94,10 @@ COMMON_SETTINGS: dict[str, tuple[Any, Callable, str]] = {
     "stm": ("j2", _choice(*STM_MODELS), "relative dynamics model of the planner"),
     "predict_step_s": (None, _optional(_number(1.0, unit="s")),
                        "spacing of the predicted trajectory in the diagnostics (default: cycle), s"),
+    "optimality_gap": (1e-3, _number(1e-9, 0.1),
+                       "relative optimality gap at which each plan's solve stops (a plan costs at "
+                       "most this fraction more than the optimum; guidance.planning.plan_deputy "
+                       "tol_rel)"),
     "target_tol_m": (0.01, _number(0.0, unit="m"),
                      "a plan missing the target by more (a-scaled ROE) is reported degraded, m"),
     "density_model": ("exponential", _choice("exponential", "harris_priester"),
@@ -298,7 +302,8 @@ class PlannerLaw:
         realise = bool(self.PLAN_DRAG and req.fixed_duty is None and req.seg_t0_s.size)
         # with drag to realise, this plan only proposes duty cycles: the minimum impulse bit is
         # enforced on the final plan of _realise (whose impulses are re-planned anyway)
-        plan = plan_deputy(req, target_tol_m=s["target_tol_m"], min_bit=not realise)
+        plan = plan_deputy(req, target_tol_m=s["target_tol_m"], tol_rel=s["optimality_gap"],
+                           min_bit=not realise)
         if plan.status == "infeasible":
             if st.plan is not None and st.plan.status != "infeasible":
                 st.status = "degraded"
@@ -350,7 +355,8 @@ class PlannerLaw:
                 break
             fixed[changed] = realised[changed]
             p2 = plan_deputy(replace(req, fixed_duty=fixed.copy(), warm_columns=warm_of(plan)),
-                             target_tol_m=s["target_tol_m"], reuse=plan, min_bit=False)
+                             target_tol_m=s["target_tol_m"], tol_rel=s["optimality_gap"], reuse=plan,
+                             min_bit=False)
             if p2.status == "infeasible":
                 break
             solve_time += p2.solve_time_s
@@ -360,7 +366,8 @@ class PlannerLaw:
         if r2.soft_weight_mps_per_m is not None or r2.burn_t_s.size == 0:
             final = predict_plan(r2, np.zeros(0), np.zeros((0, 3)), realised, target_tol_m=s["target_tol_m"])
         else:
-            final = plan_deputy(r2, target_tol_m=s["target_tol_m"], reuse=plan)
+            final = plan_deputy(r2, target_tol_m=s["target_tol_m"], tol_rel=s["optimality_gap"],
+                                reuse=plan)
         if final.status == "infeasible":
             # no impulse plan for the realised schedule: fly the last plan's impulses with it and
             # report the predicted miss

@@ -64,6 +64,7 @@ import pytest
 
 from guidance.constants import J2, MU_EARTH_M3PS2, OMEGA_EARTH_RADPS, R_EARTH_M
 from guidance.density import DensityModel, relative_wind_speed_mps
+from guidance.laws.base import COMMON_SETTINGS
 from sim.recorder import read_log
 from sim.run import run_scenario
 from sim.scenario import load_scenario
@@ -356,8 +357,9 @@ def remaining_dv_allowance(fl: Flown, deputy: str) -> tuple[np.ndarray, np.ndarr
     new optimum can exceed the old remainder by at most the cost of that correction, flown at once
     with pairs of burns half an orbit apart (minimum-dv values of Gauss's equations, Gaias et al.,
     JGCD 38(6), 2015): ``n/2 |a da| + n/2 |a de| + n |a di| + |a dlambda| / (1.5 T_left)``; plus the
-    planner's relative optimality gap 1e-5 on both plans (guidance-laws section) and two minimum
-    impulse bits (a sub-bit correction is raised to one bit, guidance.planning.plan_deputy).
+    planner's relative optimality gap (the law's ``optimality_gap``) on both plans (guidance-laws
+    section) and two minimum impulse bits (a sub-bit correction is raised to one bit,
+    guidance.planning.plan_deputy).
     """
     log = fl.log
     tc = replan_times(fl)
@@ -375,6 +377,7 @@ def remaining_dv_allowance(fl: Flown, deputy: str) -> tuple[np.ndarray, np.ndarr
     n = math.sqrt(MU_EARTH_M3PS2 / a**3)
     # the cycle before each re-plan (whose prediction the new estimate is compared with)
     t_cyc = np.asarray(log.get("guidance/cycles/t_s"))
+    gap = float(fl.cfg.guidance.settings.get("optimality_gap", COMMON_SETTINGS["optimality_gap"][0]))
     inc, allow = [], []
     for k in range(1, tc.size):
         prev = t_cyc[np.searchsorted(t_cyc, tc[k] - 1e-6) - 1]
@@ -387,7 +390,7 @@ def remaining_dv_allowance(fl: Flown, deputy: str) -> tuple[np.ndarray, np.ndarr
         cost = (0.5 * n * abs(d[0]) + abs(d[1]) / (1.5 * t_left) + 0.5 * n * math.hypot(d[2], d[3])
                 + n * math.hypot(d[4], d[5]))
         inc.append(dv[k] - dv[k - 1])
-        allow.append(1e-5 * (dv[k] + dv[k - 1]) + 2.0 * dv_min + cost)
+        allow.append(gap * (dv[k] + dv[k - 1]) + 2.0 * dv_min + cost)
     return tc[1:], np.asarray(inc), np.asarray(allow)
 
 
