@@ -131,11 +131,28 @@ def test_unknown_setting_is_refused_with_the_allowed_keys(name):
 @pytest.mark.parametrize("key,value", [("burns_per_orbit", 0), ("segments_per_orbit", 2.5),
                                        ("min_dwell_s", -1.0), ("chief_mode", "sideways"),
                                        ("density_coefficient", 0.0), ("stm", "cw"),
-                                       ("weak_drag_margin", 0.0), ("weak_drag_margin", 1.5)])
+                                       ("weak_drag_margin", 0.0), ("weak_drag_margin", 1.5),
+                                       ("optimality_gap", 0.0), ("optimality_gap", 0.5)])
 def test_bad_setting_values_name_the_key(key, value):
     with pytest.raises(GuidanceInputError) as err:
         load_law("hybrid_single").setup(mission({key: value}))
     assert key in err.value.key
+
+
+def test_optimality_gap_bounds_the_plan_cost_above_its_certified_lower_bound():
+    # weak duality (guidance.planning): a plan's cost is within the gap of its certified lower
+    # bound, hence of the optimum; a looser gap stops the column generation earlier
+    rounds = {}
+    for gap in (1e-6, 1e-2):
+        law = load_law("propulsion_only")
+        law.setup(mission({"optimality_gap": gap}))
+        out = law.step(0.0, nav(0.0, np.zeros(6)))
+        assert out.diagnostics.status == "ok", out.diagnostics.message
+        plan = law.deputies["d1"].plan
+        assert plan.cost_mps > 0
+        assert plan.cost_mps - plan.lower_bound_mps <= gap * plan.cost_mps + 1e-10
+        rounds[gap] = plan.rounds
+    assert rounds[1e-2] < rounds[1e-6]  # measured: 5 and 11
 
 
 def test_resolve_law_settings():

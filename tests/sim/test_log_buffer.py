@@ -13,6 +13,8 @@ commands, truth, mean elements) is compared.
 
 from __future__ import annotations
 
+import gc
+
 import h5py
 import numpy as np
 import pytest
@@ -127,3 +129,19 @@ def test_buffer_checks_rows_at_the_call(tmp_path):
         assert "g/t_s" not in rec.file  # still buffered
         assert log.file["g/t_s"].shape == (3,)  # reading the file writes the buffer first
         np.testing.assert_array_equal(rec.file["g/r_m"][2], [1.0, 1.0, 1.0])
+
+
+def test_frozen_heap_freezes_for_the_block_and_restores_the_collector():
+    # gc.freeze / gc.unfreeze (Python docs, module gc); the closed loop runs inside this block
+    assert gc.get_freeze_count() == 0
+    with sim.run.frozen_heap():
+        assert gc.get_freeze_count() > 0
+    assert gc.get_freeze_count() == 0
+    gc.freeze()  # a caller that froze objects itself keeps them frozen
+    try:
+        n = gc.get_freeze_count()
+        with sim.run.frozen_heap():
+            pass
+        assert gc.get_freeze_count() >= n > 0
+    finally:
+        gc.unfreeze()
