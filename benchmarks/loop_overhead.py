@@ -35,7 +35,11 @@ cores); the target's bare reference is sequential, and a bare run on the same th
 as a further reference line.
 
 Usage: ``python benchmarks/loop_overhead.py [--days 10] [--warmup-days 3] [--no-thread]
-[--no-early-start] [--profile FILE] [--keep-log PATH]``
+[--no-early-start] [--repeat N] [--profile FILE] [--keep-log PATH]``
+
+``--repeat N`` flies the closed loop N times in all, each followed by a bare run, and prints
+every ratio (each closed loop over the mean of the bare runs either side) and their median: the
+machine's speed drifts by tens of per cent within minutes, and one ratio is one sample.
 
 ``--no-early-start`` turns off :meth:`sim.truth.TruthWorld.start_early` (the chief's segment run
 while the law works) to price it: it saves the chief's propagation from the critical path but
@@ -296,9 +300,13 @@ def main() -> None:
     ap.add_argument("--keep-log", default=None, help="keep the closed-loop run log at this path")
     ap.add_argument("--no-thread", action="store_true",
                     help="write the log on the main thread (sim.run.LOG_THREAD = False)")
+    ap.add_argument("--repeat", type=int, default=1,
+                    help="closed-loop runs in all (each followed by a bare run); prints the median ratio")
     ap.add_argument("--no-early-start", action="store_true",
                     help="no early start of the chief's segments (TruthWorld.start_early off)")
     args = ap.parse_args()
+    if args.repeat < 1:
+        ap.error(f"--repeat {args.repeat}: a whole number of runs, 1 or more")
     if args.no_early_start:
         import sim.truth
 
@@ -380,6 +388,17 @@ def main() -> None:
     print(f"  {'other (engine loop, checks, run set-up)':46s} {wall - top:8.2f}  "
           f"{100 * (wall - top) / wall:5.1f} %")
     print(f"  truth propagation minus bare                 {timers.get('truth propagation (advance_to)', 0) - bare:8.2f}")
+    if args.repeat > 1:
+        ratios = [wall / bare]
+        b_prev = bare_after
+        for k in range(1, args.repeat):
+            w_k, _, _ = closed_loop_cpu(cfg, tmp / f"loop{k}.h5", None)
+            b_k, _ = bare_seconds(cfg)
+            ratios.append(w_k / (0.5 * (b_prev + b_k)))
+            b_prev = b_k
+        print(f"RATIO over {args.repeat} runs (each closed loop / mean of the bare runs either side): "
+              f"{', '.join(f'{r:.3f}' for r in ratios)}; median {float(np.median(ratios)):.3f}  "
+              f"(target <= 1.2)")
     m = {d.name: d for d in summary.metrics}
     print("run result: " + "; ".join(
         f"{n}: dv {d.dv_total_mps:.4f} m/s, final |err| {d.final_error_norm_m:.1f} m"
