@@ -302,8 +302,7 @@ class PlannerLaw:
         realise = bool(self.PLAN_DRAG and req.fixed_duty is None and req.seg_t0_s.size)
         # with drag to realise, this plan only proposes duty cycles: the minimum impulse bit is
         # enforced on the final plan of _realise (whose impulses are re-planned anyway)
-        plan = plan_deputy(req, target_tol_m=s["target_tol_m"], tol_rel=s["optimality_gap"],
-                           min_bit=not realise)
+        plan = self._solve(req, min_bit=not realise)
         if plan.status == "infeasible":
             if st.plan is not None and st.plan.status != "infeasible":
                 st.status = "degraded"
@@ -327,6 +326,12 @@ class PlannerLaw:
                        if t >= t_s - 1e-9]
         st.plan, st.plan_t_s = plan, t_s
         st.status, st.message = plan.status, plan.message
+
+    def _solve(self, req: PlanRequest, **kw) -> Plan:
+        """:func:`guidance.planning.plan_deputy` with this law's target tolerance and optimality
+        gap (``kw``: ``reuse``, ``min_bit``)."""
+        s = self.settings
+        return plan_deputy(req, target_tol_m=s["target_tol_m"], tol_rel=s["optimality_gap"], **kw)
 
     def _realise(self, req, plan, t_s, current, slew, rounds=4):
         """Duty cycles -> mode switches; re-plan until the realised drag is the planned drag.
@@ -354,9 +359,8 @@ class PlannerLaw:
             if not np.any(changed):
                 break
             fixed[changed] = realised[changed]
-            p2 = plan_deputy(replace(req, fixed_duty=fixed.copy(), warm_columns=warm_of(plan)),
-                             target_tol_m=s["target_tol_m"], tol_rel=s["optimality_gap"], reuse=plan,
-                             min_bit=False)
+            p2 = self._solve(replace(req, fixed_duty=fixed.copy(), warm_columns=warm_of(plan)),
+                             reuse=plan, min_bit=False)
             if p2.status == "infeasible":
                 break
             solve_time += p2.solve_time_s
@@ -366,8 +370,7 @@ class PlannerLaw:
         if r2.soft_weight_mps_per_m is not None or r2.burn_t_s.size == 0:
             final = predict_plan(r2, np.zeros(0), np.zeros((0, 3)), realised, target_tol_m=s["target_tol_m"])
         else:
-            final = plan_deputy(r2, target_tol_m=s["target_tol_m"], tol_rel=s["optimality_gap"],
-                                reuse=plan)
+            final = self._solve(r2, reuse=plan)
         if final.status == "infeasible":
             # no impulse plan for the realised schedule: fly the last plan's impulses with it and
             # report the predicted miss
