@@ -348,25 +348,22 @@ class PlannerLaw:
                   low_mode=LOW_DRAG_MODE, current_mode=current, end_mode=s["hold_mode"])
         fixed = np.full(req.seg_t0_s.size, np.nan)
         solve_time = plan.solve_time_s
-
-        def warm_of(p):
-            return tuple((t, d / np.linalg.norm(d)) for t, d in zip(p.burn_t_s, p.dv_rtn_mps)
-                         if np.linalg.norm(d) > 0)
-
         for _ in range(rounds):
             sw, realised = realise_duty_schedule(req.seg_t0_s, req.seg_t1_s, plan.duty, t_s, **kw)
             changed = np.abs(realised - plan.duty) > 1e-9
             if not np.any(changed):
                 break
             fixed[changed] = realised[changed]
-            p2 = self._solve(replace(req, fixed_duty=fixed.copy(), warm_columns=warm_of(plan)),
-                             reuse=plan, min_bit=False)
+            warm = warm_directions(zip(plan.burn_t_s, plan.dv_rtn_mps))
+            p2 = self._solve(replace(req, fixed_duty=fixed.copy(), warm_columns=warm), reuse=plan,
+                             min_bit=False)
             if p2.status == "infeasible":
                 break
             solve_time += p2.solve_time_s
             plan = p2
         sw, realised = realise_duty_schedule(req.seg_t0_s, req.seg_t1_s, plan.duty, t_s, **kw)
-        r2 = replace(req, fixed_duty=realised, warm_columns=warm_of(plan))
+        r2 = replace(req, fixed_duty=realised,
+                     warm_columns=warm_directions(zip(plan.burn_t_s, plan.dv_rtn_mps)))
         if r2.soft_weight_mps_per_m is not None or r2.burn_t_s.size == 0:
             final = predict_plan(r2, np.zeros(0), np.zeros((0, 3)), realised, target_tol_m=s["target_tol_m"])
         else:
@@ -494,6 +491,12 @@ def _beyond_fixed(plan: Plan, req: PlanRequest) -> tuple[np.ndarray, np.ndarray]
         if hit.size:
             keep[hit[0]] = False
     return bt[keep], bdv[keep]
+
+
+def warm_directions(impulses) -> tuple:
+    """``(t_s, unit direction)`` of every non-zero impulse ``(t_s, dv (3,))``: the starting columns
+    (``PlanRequest.warm_columns``) a re-plan takes from impulses planned before."""
+    return tuple((t, d / np.linalg.norm(d)) for t, d in impulses if np.linalg.norm(d) > 0)
 
 
 def settings_table(cls) -> str:

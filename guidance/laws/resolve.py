@@ -21,7 +21,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .base import PlannerLaw, _choice, _number, _optional
+from .base import PlannerLaw, _choice, _number, _optional, warm_directions
 from ..planning import PlanRequest
 
 
@@ -72,7 +72,7 @@ class HybridResolve(PlannerLaw):
             fixed = [(t, d) for t, d in ahead if t < t_s + s["burn_margin_s"] - 1e-9]
             tb = req.burn_t_s
             soft = None
-        warm = tuple((t, d / np.linalg.norm(d)) for t, d in ahead if np.linalg.norm(d) > 0)
+        warm = warm_directions(ahead)
         return PlanRequest(**{
             **req.__dict__,
             "burn_t_s": tb,
