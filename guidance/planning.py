@@ -1277,12 +1277,13 @@ def realise_duty_schedule(seg_t0_s, seg_t1_s, duty, t_now_s, *, slew_s=0.0, min_
         if m != last:
             clean.append((tc, m))
             last = m
-    realised = np.zeros(S)
+    # high-drag time per segment: the cumulative high-drag time H(t) is piecewise linear with
+    # breaks at the (time-ordered) effective switches, so each segment's is H(s1) - H(s0)
     timeline = [(t_start, current_mode)] + eff
-    for k, (te, m) in enumerate(timeline):
-        if m != high_mode:
-            continue
-        te1 = timeline[k + 1][0] if k + 1 < len(timeline) else np.inf
-        realised += np.clip(np.minimum(s1, te1) - np.maximum(s0, te), 0.0, None)
+    te = np.array([t for t, _ in timeline] + [max(t_end, timeline[-1][0])])
+    high = np.array([m == high_mode for _, m in timeline], dtype=float)
+    te[1:] = np.maximum.accumulate(te[1:])
+    H = np.concatenate([[0.0], np.cumsum(high * np.diff(te))])
+    realised = np.interp(s1, te, H) - np.interp(s0, te, H)
     realised = np.where(L > 0, realised / np.maximum(L, 1e-300), 0.0)
     return clean, np.clip(realised, 0.0, 1.0)

@@ -28,7 +28,7 @@ from ..dynamics import mean_motion
 from ..estimation import nav_to_mean
 from ..interface import (Diagnostics, GuidanceInputError, GuidanceOutput, Impulse, Mission,
                          ModeSwitch, NavSolution, SpacecraftCaps, SpacecraftCommand)
-from ..planning import (STM_MODELS, Plan, PlanRequest, burn_grid, chief_period_s, plan_deputy,
+from ..planning import (STM_MODELS, TINY_DV_MPS, Plan, PlanRequest, burn_grid, chief_period_s, plan_deputy,
                         predict_plan, propagate_chief, realise_duty_schedule, segment_grid)
 
 HIGH_DRAG_MODE = "max_drag"
@@ -364,7 +364,13 @@ class PlannerLaw:
         sw, realised = realise_duty_schedule(req.seg_t0_s, req.seg_t1_s, plan.duty, t_s, **kw)
         r2 = replace(req, fixed_duty=realised,
                      warm_columns=warm_directions(zip(plan.burn_t_s, plan.dv_rtn_mps)))
-        if r2.soft_weight_mps_per_m is not None or r2.burn_t_s.size == 0:
+        if plan.status == "ok" and np.all(np.abs(realised - plan.duty) <= 1e-9) \
+                and not _has_sub_bit(_beyond_fixed(plan, req)[1], float(req.dv_min_mps)):
+            # the plan's duty cycles are already the realised schedule and no impulse is below
+            # the minimum bit: the all-fixed re-plan would return this very plan (its optimum
+            # stays feasible, so optimal, with the duty fixed there), so it is not run
+            final = replace(plan, request=r2)
+        elif r2.soft_weight_mps_per_m is not None or r2.burn_t_s.size == 0:
             final = predict_plan(r2, np.zeros(0), np.zeros((0, 3)), realised, target_tol_m=s["target_tol_m"])
         else:
             final = self._solve(r2, reuse=plan)
@@ -491,6 +497,13 @@ def _beyond_fixed(plan: Plan, req: PlanRequest) -> tuple[np.ndarray, np.ndarray]
         if hit.size:
             keep[hit[0]] = False
     return bt[keep], bdv[keep]
+
+
+def _has_sub_bit(dv_rtn_mps, dv_min_mps: float) -> bool:
+    """Whether any impulse (rows of ``dv_rtn_mps``, m/s) is above the LP's noise level
+    (:data:`guidance.planning.TINY_DV_MPS`) but below the minimum impulse bit ``dv_min_mps``."""
+    mag = np.linalg.norm(np.asarray(dv_rtn_mps, dtype=float).reshape(-1, 3), axis=1)
+    return bool(np.any((mag > TINY_DV_MPS) & (mag < dv_min_mps)))
 
 
 def warm_directions(impulses) -> tuple:

@@ -303,3 +303,43 @@ def test_weak_drag_margin_scales_only_the_weaker_mode_of_the_plan():
     s5 = request("hybrid_single", 0.5)
     np.testing.assert_allclose(s5.w_low_mps2, lo1, rtol=1e-12)
     np.testing.assert_allclose(s5.w_high_mps2, hi1, rtol=1e-12)
+
+
+def test_realised_plan_skips_only_a_re_plan_that_would_return_it(monkeypatch):
+    """The all-fixed final re-plan of a hybrid law is skipped when the plan's duty cycles are
+    already the realised schedule and no impulse is below the minimum bit (its optimum stays
+    optimal with the duty fixed there). Checked against the re-plan itself: the same law and
+    navigation with the shortcut disabled give the same commands and remaining delta-v."""
+    import guidance.laws.base as base
+
+    def fly(force_replan):
+        calls = {"final": 0}
+        orig = base.plan_deputy
+
+        def counting(req, **kw):
+            if kw.get("reuse") is not None and kw.get("min_bit", True):
+                calls["final"] += 1
+            return orig(req, **kw)
+
+        with monkeypatch.context() as mp:
+            mp.setattr(base, "plan_deputy", counting)
+            if force_replan:
+                mp.setattr(base, "_has_sub_bit", lambda dv, dv_min: True)
+            law = load_law("hybrid_resolve")
+            law.setup(mission())
+            outs = [law.step(t, nav(t, np.array([0.0, 40.0 * k, 2.0, -1.0, 0.0, 0.0])))
+                    for k, t in enumerate((0.0, 5400.0, 10800.0, 16200.0))]
+        return outs, calls["final"]
+
+    fast, n_fast = fly(False)
+    slow, n_slow = fly(True)
+    assert n_slow == 4 and n_fast < n_slow  # the shortcut was taken at least once
+    for a, b in zip(fast, slow):
+        np.testing.assert_allclose(a.diagnostics.dv_remaining_mps["d1"],
+                                   b.diagnostics.dv_remaining_mps["d1"], rtol=1e-9, atol=1e-12)
+        ca, cb = a.commands["d1"], b.commands["d1"]
+        assert [(s.t_s, s.mode) for s in ca.mode_switches] == [(s.t_s, s.mode) for s in cb.mode_switches]
+        assert len(ca.impulses) == len(cb.impulses)
+        for ia, ib in zip(ca.impulses, cb.impulses):
+            assert ia.t_s == ib.t_s
+            np.testing.assert_allclose(ia.dv_rtn_mps, ib.dv_rtn_mps, rtol=1e-9, atol=1e-12)
