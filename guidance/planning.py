@@ -1282,7 +1282,7 @@ def realise_duty_schedule(seg_t0_s, seg_t1_s, duty, t_now_s, *, slew_s=0.0, min_
     timeline = [(t_start, current_mode)] + eff
     te = np.array([t for t, _ in timeline] + [max(t_end, timeline[-1][0])])
     high = np.array([m == high_mode for _, m in timeline], dtype=float)
-    te[1:] = np.maximum.accumulate(te[1:])
+    te = np.maximum.accumulate(te)
     H = np.concatenate([[0.0], np.cumsum(high * np.diff(te))])
     realised = np.interp(s1, te, H) - np.interp(s0, te, H)
     realised = np.where(L > 0, realised / np.maximum(L, 1e-300), 0.0)

@@ -369,7 +369,7 @@ class PlannerLaw:
             # the plan's duty cycles are already the realised schedule and no impulse is below
             # the minimum bit: the all-fixed re-plan would return this very plan (its optimum
             # stays feasible, so optimal, with the duty fixed there), so it is not run
-            final = replace(plan, request=r2)
+            final = replace(plan, request=r2, solve_time_s=0.0)  # its time is counted already
         elif r2.soft_weight_mps_per_m is not None or r2.burn_t_s.size == 0:
             final = predict_plan(r2, np.zeros(0), np.zeros((0, 3)), realised, target_tol_m=s["target_tol_m"])
         else:
