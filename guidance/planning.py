@@ -105,6 +105,13 @@ TINY_DV_MPS = 1e-9
 """Impulses below this (m/s) are numerical noise of the LP and are removed without re-solving."""
 
 
+def sub_bit(mag_mps, dv_min_mps):
+    """Mask of impulse magnitudes (m/s) that are real impulses (above :data:`TINY_DV_MPS`) but
+    below the minimum impulse bit ``dv_min_mps``: the ones the minimum-bit logic must handle."""
+    mag_mps = np.asarray(mag_mps, dtype=float)
+    return (mag_mps > TINY_DV_MPS) & (mag_mps < dv_min_mps)
+
+
 # --------------------------------------------------------------------------------------------
 # Time grids and chief motion
 # --------------------------------------------------------------------------------------------
@@ -1023,7 +1030,7 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
     raised = None  # indices of those raised impulses
     for k in range(max_min_bit_rounds):
         mag = np.linalg.norm(sol.dv, axis=1)
-        small = np.nonzero((mag > TINY_DV_MPS) & (mag < dv_min))[0]
+        small = np.nonzero(sub_bit(mag, dv_min))[0]
         if small.size == 0:
             break
         if rounded is None:
@@ -1042,7 +1049,7 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
         trial = prog.solve(tol_rel=tol_rel)
         if trial.status != "ok":
             # no plan without them: drop them and report the miss
-            gone = (mag > TINY_DV_MPS) & (mag < dv_min)
+            gone = sub_bit(mag, dv_min)
             sol.dv[gone] = 0.0
             status = "degraded"
             message = (f"{int(gone.sum())} impulse(s) below the minimum impulse bit "
@@ -1056,7 +1063,7 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
         # when it costs about what the rounded plan costs; a hit at a much higher price (the
         # correction pushed onto few burns) is worse than the rounded plan's small miss.
         mag = np.linalg.norm(sol.dv, axis=1)
-        clean = status == "ok" and not np.any((mag > TINY_DV_MPS) & (mag < dv_min))
+        clean = status == "ok" and not np.any(sub_bit(mag, dv_min))
         hits = [(float(np.sum(mag)), (sol.dv, sol.duty))] if clean else []
         if status == "ok":
             corrected = _round_and_correct(prog, form.delta, rounded[0], raised, dv_min, tol_rel)
@@ -1073,7 +1080,7 @@ def plan_deputy(req: PlanRequest, *, tol_rel=1e-5, max_min_bit_rounds=5, target_
                 status, message = "degraded", (f"impulse(s) below the minimum impulse bit "
                                                f"({dv_min:.3g} m/s) raised to it")
     mag = np.linalg.norm(sol.dv, axis=1)
-    bad = (mag > TINY_DV_MPS) & (mag < dv_min)
+    bad = sub_bit(mag, dv_min)
     if np.any(bad):
         sol.dv[bad] = 0.0
         status = "degraded"
@@ -1109,7 +1116,7 @@ def _round_and_correct(prog: MinFuelProgram, delta0, dv_rounded, raised, dv_min,
         if trial.status != "ok":
             return None
         m = np.linalg.norm(trial.dv, axis=1)
-        new_small = (m > TINY_DV_MPS) & (m < dv_min)
+        new_small = sub_bit(m, dv_min)
         if not np.any(new_small):
             dv = trial.dv.copy()
             dv[m <= TINY_DV_MPS] = 0.0
@@ -1280,9 +1287,8 @@ def realise_duty_schedule(seg_t0_s, seg_t1_s, duty, t_now_s, *, slew_s=0.0, min_
     # high-drag time per segment: the cumulative high-drag time H(t) is piecewise linear with
     # breaks at the (time-ordered) effective switches, so each segment's is H(s1) - H(s0)
     timeline = [(t_start, current_mode)] + eff
-    te = np.array([t for t, _ in timeline] + [max(t_end, timeline[-1][0])])
+    te = np.maximum.accumulate(np.array([t for t, _ in timeline] + [t_end]))
     high = np.array([m == high_mode for _, m in timeline], dtype=float)
-    te = np.maximum.accumulate(te)
     H = np.concatenate([[0.0], np.cumsum(high * np.diff(te))])
     realised = np.interp(s1, te, H) - np.interp(s0, te, H)
     realised = np.where(L > 0, realised / np.maximum(L, 1e-300), 0.0)

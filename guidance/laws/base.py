@@ -28,8 +28,9 @@ from ..dynamics import mean_motion
 from ..estimation import nav_to_mean
 from ..interface import (Diagnostics, GuidanceInputError, GuidanceOutput, Impulse, Mission,
                          ModeSwitch, NavSolution, SpacecraftCaps, SpacecraftCommand)
-from ..planning import (STM_MODELS, TINY_DV_MPS, Plan, PlanRequest, burn_grid, chief_period_s, plan_deputy,
-                        predict_plan, propagate_chief, realise_duty_schedule, segment_grid)
+from ..planning import (STM_MODELS, Plan, PlanRequest, burn_grid, chief_period_s, plan_deputy,
+                        predict_plan, propagate_chief, realise_duty_schedule, segment_grid,
+                        sub_bit)
 
 HIGH_DRAG_MODE = "max_drag"
 LOW_DRAG_MODE = "min_drag"
@@ -348,10 +349,11 @@ class PlannerLaw:
                   low_mode=LOW_DRAG_MODE, current_mode=current, end_mode=s["hold_mode"])
         fixed = np.full(req.seg_t0_s.size, np.nan)
         solve_time = plan.solve_time_s
-        for _ in range(rounds):
+        for k in range(rounds + 1):
+            # the realisation of the current plan; after the loop, sw and realised belong to plan
             sw, realised = realise_duty_schedule(req.seg_t0_s, req.seg_t1_s, plan.duty, t_s, **kw)
             changed = np.abs(realised - plan.duty) > 1e-9
-            if not np.any(changed):
+            if not np.any(changed) or k == rounds:
                 break
             fixed[changed] = realised[changed]
             warm = warm_directions(zip(plan.burn_t_s, plan.dv_rtn_mps))
@@ -361,10 +363,9 @@ class PlannerLaw:
                 break
             solve_time += p2.solve_time_s
             plan = p2
-        sw, realised = realise_duty_schedule(req.seg_t0_s, req.seg_t1_s, plan.duty, t_s, **kw)
         r2 = replace(req, fixed_duty=realised,
                      warm_columns=warm_directions(zip(plan.burn_t_s, plan.dv_rtn_mps)))
-        if plan.status == "ok" and np.all(np.abs(realised - plan.duty) <= 1e-9) \
+        if plan.status == "ok" and not np.any(changed) \
                 and not _has_sub_bit(_beyond_fixed(plan, req)[1], float(req.dv_min_mps)):
             # the plan's duty cycles are already the realised schedule and no impulse is below
             # the minimum bit: the all-fixed re-plan would return this very plan (its optimum
@@ -500,10 +501,10 @@ def _beyond_fixed(plan: Plan, req: PlanRequest) -> tuple[np.ndarray, np.ndarray]
 
 
 def _has_sub_bit(dv_rtn_mps, dv_min_mps: float) -> bool:
-    """Whether any impulse (rows of ``dv_rtn_mps``, m/s) is above the LP's noise level
-    (:data:`guidance.planning.TINY_DV_MPS`) but below the minimum impulse bit ``dv_min_mps``."""
-    mag = np.linalg.norm(np.asarray(dv_rtn_mps, dtype=float).reshape(-1, 3), axis=1)
-    return bool(np.any((mag > TINY_DV_MPS) & (mag < dv_min_mps)))
+    """Whether any impulse (rows of ``dv_rtn_mps``, m/s) is below the minimum impulse bit
+    (:func:`guidance.planning.sub_bit`)."""
+    return bool(np.any(sub_bit(np.linalg.norm(np.asarray(dv_rtn_mps, dtype=float).reshape(-1, 3), axis=1),
+                               dv_min_mps)))
 
 
 def warm_directions(impulses) -> tuple:
