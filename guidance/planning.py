@@ -404,10 +404,8 @@ class MinFuelProgram:
         self._inf = inf
         self._first_burn_col = 12 + self.S
         self._nrow = 6
-        self._col_burn: list[int] = []
-        self._col_dir: list[np.ndarray] = []
-        self._col_arrays = None
-        self._cols_of: dict[int, list[int]] = {}
+        self._burn = np.zeros(0, dtype=np.int64)  # candidate burn of each burn column
+        self._dirs = np.zeros((0, 3))  # unit RTN direction of each burn column
         self._cap_row = -np.ones(self.J, dtype=np.int64)
         # starting columns: warm ones, then +-R, +-T, +-N at a few burns spread over the horizon
         cols = [(int(j), np.asarray(d, dtype=float) / np.linalg.norm(d))
@@ -418,7 +416,7 @@ class MinFuelProgram:
             cols += [(int(j), d) for j in spread for d in axes]
             cols += self._energy_columns(n_init)
         if cols:
-            self._add_columns(cols)
+            self._add_columns(np.array([j for j, _ in cols]), np.array([d for _, d in cols]))
 
     def _energy_columns(self, k):
         """Starting directions from the minimum-energy plan's multiplier.
@@ -441,46 +439,56 @@ class MinFuelProgram:
         return [(int(j), A[j] / f[j]) for j in sel]
 
     # ---- LP bookkeeping ---------------------------------------------------------------------
-    def _add_columns(self, cols):
-        h = self._h
-        js = np.array([j for j, _ in cols])
-        dirs = np.array([d for _, d in cols])
+    def _add_columns(self, js, dirs):
+        """Burn columns: candidate burns ``js`` (m,) with unit RTN directions ``dirs`` (m, 3)."""
+        js = np.asarray(js, dtype=np.int64).reshape(-1)
+        dirs = np.asarray(dirs, dtype=float).reshape(-1, 3)
         vals = np.einsum("mik,mk->mi", self.G[js], dirs)
         # column k: rows 0..5 with vals[k], then its capacity row (if any) with 1
         cap = self._cap_row[js]
         has = cap >= 0
         m = js.size
-        width = 6 + has.astype(np.int64)
-        starts = np.concatenate([[0], np.cumsum(width)[:-1]]).astype(np.int32)
-        ind = np.empty((m, 7), dtype=np.int32)
-        val = np.empty((m, 7))
-        ind[:, :6] = np.arange(6, dtype=np.int32)
-        val[:, :6] = vals
-        ind[:, 6] = cap
-        val[:, 6] = 1.0
-        keep = np.ones((m, 7), dtype=bool)
-        keep[:, 6] = has
-        ind, val = ind[keep], val[keep]
+        if np.any(has):
+            width = 6 + has.astype(np.int64)
+            starts = np.concatenate([[0], np.cumsum(width)[:-1]]).astype(np.int32)
+            ind = np.empty((m, 7), dtype=np.int32)
+            val = np.empty((m, 7))
+            ind[:, :6] = np.arange(6, dtype=np.int32)
+            val[:, :6] = vals
+            ind[:, 6] = cap
+            val[:, 6] = 1.0
+            keep = np.ones((m, 7), dtype=bool)
+            keep[:, 6] = has
+            ind, val = ind[keep], val[keep]
+        else:
+            starts = np.arange(0, 6 * m, 6, dtype=np.int32)
+            ind = np.tile(np.arange(6, dtype=np.int32), m)
+            val = vals.ravel()
         ub = np.where(self.excluded[js], 0.0, self.D[js])
-        h.addCols(m, np.ones(m), np.zeros(m), ub, int(ind.size), starts, ind, val)
-        base = self._first_burn_col + len(self._col_burn)
-        for k, (j, d) in enumerate(cols):
-            self._col_burn.append(j)
-            self._col_dir.append(d)
-            self._cols_of.setdefault(j, []).append(base + k)
+        self._h.addCols(m, np.ones(m), np.zeros(m), ub, int(ind.size), starts, ind, val)
+        self._burn = np.concatenate([self._burn, js])
+        self._dirs = np.concatenate([self._dirs, dirs])
 
-    def _add_capacity_rows(self, x) -> int:
+    def _columns_of(self, burns):
+        """LP column indices of the burn columns of candidate burns ``burns``, ascending."""
+        return (np.nonzero(np.isin(self._burn, burns))[0] + self._first_burn_col).astype(np.int32)
+
+    def _burn_x(self, x):
+        """Magnitudes of the burn columns in the LP solution ``x`` (clipped at zero)."""
+        return np.clip(x[self._first_burn_col:self._first_burn_col + self._burn.size], 0.0, None)
+
+    def _add_capacity_rows(self, x, xb=None) -> int:
         """Capacity rows ``sum mu <= dv_max`` for the burns whose columns together exceed their
         maximum in the LP solution ``x`` (added lazily: most burns never need one, and every row
-        makes each LP run dearer). Returns how many were added."""
-        if not self._col_burn:
+        makes each LP run dearer). ``xb``: :meth:`_burn_x` of ``x`` if already computed.
+        Returns how many were added."""
+        if not self._burn.size:
             return 0
-        burn = np.asarray(self._col_burn)
-        xb = np.clip(x[self._first_burn_col:self._first_burn_col + burn.size], 0.0, None)
-        total = np.bincount(burn, weights=xb, minlength=self.J)
+        xb = self._burn_x(x) if xb is None else xb
+        total = np.bincount(self._burn, weights=xb, minlength=self.J)
         over = np.nonzero((total > self.D * (1.0 + 1e-9) + 1e-15) & (self._cap_row < 0))[0]
         for j in over:
-            idx = np.array(self._cols_of[int(j)], dtype=np.int32)
+            idx = self._columns_of(j)
             self._h.addRow(-self._inf, float(self.D[j]), idx.size, idx, np.ones(idx.size))
             self._cap_row[j] = self._nrow
             self._nrow += 1
@@ -510,18 +518,16 @@ class MinFuelProgram:
         if not np.any(self.excluded):
             return
         self.excluded[:] = False
-        if self._finite and self._col_burn:
-            burn = np.asarray(self._col_burn)
-            idx = np.arange(self._first_burn_col, self._first_burn_col + burn.size, dtype=np.int32)
-            self._h.changeColsBounds(idx.size, idx, np.zeros(idx.size), self.D[burn])
+        if self._finite and self._burn.size:
+            idx = np.arange(self._first_burn_col, self._first_burn_col + self._burn.size, dtype=np.int32)
+            self._h.changeColsBounds(idx.size, idx, np.zeros(idx.size), self.D[self._burn])
 
     def exclude(self, burns):
         """Forbid candidate burns (fix their columns at zero and stop pricing them)."""
         burns = np.atleast_1d(np.asarray(burns, dtype=int))
         self.excluded[burns] = True
-        cols = [c for j in burns for c in self._cols_of.get(int(j), [])]
-        if cols and self._finite:
-            idx = np.array(cols, dtype=np.int32)
+        idx = self._columns_of(burns)
+        if idx.size and self._finite:
             self._h.changeColsBounds(idx.size, idx, np.zeros(idx.size), np.zeros(idx.size))
 
     # ---- certificates -----------------------------------------------------------------------
@@ -583,7 +589,8 @@ class MinFuelProgram:
             self.rounds += 1
             sol = self._h.getSolution()
             x = np.asarray(sol.col_value)
-            if self._add_capacity_rows(x):
+            xb = self._burn_x(x)
+            if self._add_capacity_rows(x, xb):
                 continue  # a burn's directions together exceeded its maximum: re-run with the row
             y = np.asarray(sol.row_dual)
             lam = y[:6].copy()
@@ -592,7 +599,7 @@ class MinFuelProgram:
             if lb > best_lb:
                 best_lb, best_lam = lb, lam
             art = x[:6] + x[6:12]
-            dv, ub = self._primal(x)
+            dv, ub = self._primal(x, xb)
             if self.soft is not None:
                 ub += float(np.sum(self.soft * art))
                 feasible = True
@@ -618,7 +625,7 @@ class MinFuelProgram:
             sel = loc[np.argsort(red[loc])[:n_add]]
             if sel.size < min(8, viol.size):
                 sel = np.union1d(sel, viol[np.argsort(red[viol])[:8]])
-            self._add_columns([(int(j), A[j] / f[j]) for j in sel])
+            self._add_columns(sel, A[sel] / f[sel, None])
         sol = self._h.getSolution()
         x = np.asarray(sol.col_value)
         for _ in range(5):  # the loop may end right after adding capacity rows: honour them
@@ -648,21 +655,22 @@ class MinFuelProgram:
             0.0 if self.soft is None else float(np.sum(self.soft * np.abs(slack))))),
             best_lam, residual, self.rounds)
 
-    def _primal(self, x):
+    def _primal(self, x, xb=None):
+        """Impulses (J, 3) of the LP solution ``x`` and their cost (sum of norms), m/s."""
         dv = np.zeros((self.J, 3))
-        if self._col_burn:
-            xb = np.clip(x[self._first_burn_col:], 0.0, None)
-            n = len(self._col_burn)
-            if self._col_arrays is None or self._col_arrays[0].size != n:
-                self._col_arrays = (np.array(self._col_burn), np.array(self._col_dir))
-            burn, dirs = self._col_arrays
-            np.add.at(dv, burn, xb[:, None] * dirs)
-            # the capacity rows guarantee sum(mu) <= D; clip round-off so |dv| <= D exactly
+        if not self._burn.size:
+            return dv, 0.0
+        xb = self._burn_x(x) if xb is None else xb
+        w = xb[:, None] * self._dirs
+        for k in range(3):  # the columns' sum per burn (bincount adds in column order)
+            dv[:, k] = np.bincount(self._burn, weights=w[:, k], minlength=self.J)
+        # the capacity rows guarantee sum(mu) <= D; clip round-off so |dv| <= D exactly
+        nrm = np.linalg.norm(dv, axis=1)
+        over = nrm > self.D
+        if np.any(over):
+            dv[over] *= (self.D[over] / nrm[over])[:, None]
             nrm = np.linalg.norm(dv, axis=1)
-            over = nrm > self.D
-            if np.any(over):
-                dv[over] *= (self.D[over] / nrm[over])[:, None]
-        return dv, float(np.sum(np.linalg.norm(dv, axis=1)))
+        return dv, float(np.sum(nrm))
 
 
 def solve_min_fuel(G, H, delta, dv_max, *, soft_weight=None, tol_rel=1e-5, warm_columns=()):
