@@ -1254,44 +1254,66 @@ def realise_duty_schedule(seg_t0_s, seg_t1_s, duty, t_now_s, *, slew_s=0.0, min_
     q = np.where(q > 1.0 - 1e-12, 1.0, q)
     mid = 0.5 * (s0 + s1)
     half = 0.5 * q * L
-    merged = []
-    for m, h, dd in zip(mid, half, q):
-        if dd <= 0:
-            continue
-        a0, a1 = m - h, m + h
-        if merged and a0 - merged[-1][1] < 1e-6:
-            merged[-1][1] = max(merged[-1][1], a1)
-        else:
-            merged.append([a0, a1])
+    a0s, a1s = (mid - half)[q > 0], (mid + half)[q > 0]
+    if a1s.size < 2 or np.all(np.diff(a1s) >= 0):
+        # spells in time order (segments do not overlap): a spell joins the previous one when it
+        # starts within 1e-6 s of its end, and a merged spell ends where its last member ends
+        first = np.ones(a1s.size, dtype=bool)
+        first[1:] = ~(a0s[1:] - a1s[:-1] < 1e-6)
+        starts = np.nonzero(first)[0]
+        ends = np.concatenate([starts[1:] - 1, [a1s.size - 1]]).astype(int) if a1s.size else starts
+        m0, m1 = a0s[starts], a1s[ends]
+    else:  # overlapping segments (not from segment_grid): merge one spell at a time
+        merged = []
+        for a0, a1 in zip(a0s, a1s):
+            if merged and a0 - merged[-1][1] < 1e-6:
+                merged[-1][1] = max(merged[-1][1], a1)
+            else:
+                merged.append([a0, a1])
+        m0 = np.array([m[0] for m in merged])
+        m1 = np.array([m[1] for m in merged])
     t_start, t_end = float(s0[0]), float(s1[-1])
-    events = []  # effective (time, mode)
-    if not merged or merged[0][0] > t_start + 1e-9:
-        events.append((t_start, low_mode))
-    for a0, a1 in merged:
-        events.append((max(a0, t_start), high_mode))
-        if a1 < t_end - 1e-9:
-            events.append((a1, low_mode))
-    if end_mode is not None:
-        events.append((t_end, end_mode))
-    switches, eff = [], []
-    mode = current_mode
-    for te, m in events:
-        if m == mode:
-            continue
-        tc = max(te - 0.5 * slew_s, float(t_now_s))
-        te_real = tc + 0.5 * slew_s if tc > te - 0.5 * slew_s + 1e-9 else te
-        if switches and tc <= switches[-1][0] + 1e-9:
-            switches[-1] = (switches[-1][0], m)  # two commands at one instant: the later wins
-            eff[-1] = (eff[-1][0], m)
-        else:
-            switches.append((tc, m))
-            eff.append((te_real, m))
-        mode = m
-    clean, last = [], current_mode
-    for tc, m in switches:
-        if m != last:
-            clean.append((tc, m))
-            last = m
+    # effective (time, mode) events: [low at the start], then per spell high (and low after it
+    # unless it runs to the end), [end mode]
+    names = [low_mode, high_mode] + ([] if end_mode is None else [end_mode])
+    ids = {}
+    code = np.array([ids.setdefault(n, len(ids)) for n in names])
+    pair_t = np.column_stack([np.maximum(m0, t_start), m1]).ravel()
+    pair_c = np.tile(code[[1, 0]], m0.size)
+    pair_keep = np.ones(pair_t.size, dtype=bool)
+    pair_keep[1::2] = m1 < t_end - 1e-9
+    lead = m0.size == 0 or m0[0] > t_start + 1e-9
+    ev_t = np.concatenate([[t_start] if lead else [], pair_t[pair_keep],
+                           [] if end_mode is None else [t_end]])
+    ev_c = np.concatenate([code[:1] if lead else [], pair_c[pair_keep],
+                           [] if end_mode is None else code[2:]]).astype(int)
+    # an event into the mode already commanded is no switch
+    prev = np.concatenate([[ids.get(current_mode, -1)], ev_c[:-1]])
+    keep = ev_c != prev
+    ev_t, ev_c = ev_t[keep], ev_c[keep]
+    tc_all = np.maximum(ev_t - 0.5 * slew_s, float(t_now_s))
+    te_all = np.where(tc_all > ev_t - 0.5 * slew_s + 1e-9, tc_all + 0.5 * slew_s, ev_t)
+    mode_of = {i: n for n, i in ids.items()}
+    if tc_all.size < 2 or not np.any(tc_all[1:] <= tc_all[:-1] + 1e-9):
+        # no two commands at one instant: every kept event is a switch, modes alternate
+        ms = [mode_of[c] for c in ev_c.tolist()]
+        clean = list(zip(tc_all.tolist(), ms))
+        eff = list(zip(te_all.tolist(), ms))
+    else:
+        switches, eff = [], []
+        for tc, te_real, c in zip(tc_all.tolist(), te_all.tolist(), ev_c.tolist()):
+            m = mode_of[c]
+            if switches and tc <= switches[-1][0] + 1e-9:
+                switches[-1] = (switches[-1][0], m)  # two commands at one instant: the later wins
+                eff[-1] = (eff[-1][0], m)
+            else:
+                switches.append((tc, m))
+                eff.append((te_real, m))
+        clean, last = [], current_mode
+        for tc, m in switches:
+            if m != last:
+                clean.append((tc, m))
+                last = m
     # high-drag time per segment: the cumulative high-drag time H(t) is piecewise linear with
     # breaks at the (time-ordered) effective switches, so each segment's is H(s1) - H(s0)
     timeline = [(t_start, current_mode)] + eff

@@ -366,3 +366,20 @@ def test_duty_schedule_realises_the_duty_and_is_time_ordered():
                                       0.0, slew_s=60.0, min_dwell_s=100.0, current_mode="min_drag")
     gaps = np.diff([t for t, _ in sw4])
     assert np.all(gaps >= 100.0 - 1e-9)
+
+
+def test_duty_schedule_merges_commands_at_one_instant_and_overlapping_spells():
+    # segment 0's centred spell [150, 850] s (duty 0.7; its 300 s remainder is not shorter than
+    # two 120 s dwells): with a 120 s slew and t_now = 100 s, the low-drag start (due at -60 s)
+    # and the spell's switch (due at 90 s) are both held at 100 s: one command, the later mode
+    # wins, in effect half a slew later (160 s); the switch out at 850 - 60 s (hand-computed)
+    s0, s1 = np.array([0.0, 1000.0]), np.array([1000.0, 2000.0])
+    sw, real = pl.realise_duty_schedule(s0, s1, np.array([0.7, 0.0]), 100.0, slew_s=120.0,
+                                        current_mode="nominal")
+    assert sw == [(100.0, "max_drag"), (790.0, "min_drag")]
+    np.testing.assert_allclose(real, [(850.0 - 160.0) / 1000.0, 0.0], atol=1e-12)
+    # overlapping segments (not from segment_grid): the second spell [500, 1000] lies inside
+    # the first [0, 2000]; they merge into one spell, one switch
+    sw2, _ = pl.realise_duty_schedule(np.array([0.0, 500.0]), np.array([2000.0, 1000.0]),
+                                      np.array([1.0, 1.0]), 0.0)
+    assert sw2 == [(0.0, "max_drag")]
