@@ -12,41 +12,17 @@ from pathlib import Path
 
 import numpy as np
 
-from guidance.constants import R_EARTH_M
-from guidance.interface import (AbsoluteEstimate, DeputyTarget, Mission, NavSolution, RelativeEstimate,
-                                SpacecraftCaps, ThrusterCaps)
-from guidance.meanosc import mean_oe_to_rv
-from guidance.planning import propagate_chief
 from guidance.registry import load_law
-from guidance.roe import roe_to_oe, rtn_basis
+from test_laws import mission, nav  # the law tests' mission and navigation builders
 
 ROOT = Path(__file__).resolve().parents[2]
 SCRIPT = ROOT / "benchmarks" / "law_replay.py"
-CHIEF = np.array([R_EARTH_M + 500e3, 0.0, 0.0, np.radians(97.4), 0.3, 0.1])
-AREAS = {"max_drag": 0.034, "min_drag": 0.01, "nominal": 0.02}  # m^2, invented
-
-
-def _caps(name, thruster):
-    return SpacecraftCaps(name, 4.0, 2.2, dict(AREAS), 120.0,
-                          ThrusterCaps(0.05, 1e-4, 60.0, 0.2) if thruster else None, "nominal")
-
-
-def _nav(t, roe_m):
-    chief_t = propagate_chief(CHIEF, t)
-    rc, vc = mean_oe_to_rv(chief_t)
-    C = rtn_basis(rc, vc)
-    rd, vd = mean_oe_to_rv(roe_to_oe(chief_t, np.asarray(roe_m, float) / CHIEF[0]))
-    return NavSolution(t, AbsoluteEstimate("chief", t, rc, vc, np.ones(3), np.full(3, 1e-3), 4.0),
-                       {"d1": RelativeEstimate("d1", t, C @ (rd - rc), C @ (vd - vc),
-                                               np.full(3, 0.02), np.full(3, 5e-4), 4.0)}, True)
 
 
 def _capture(path: Path) -> None:
-    m = Mission("2025-03-01T00:00:00Z", _caps("chief", False), (_caps("d1", True),),
-                (DeputyTarget("d1", np.array([0.0, -3000.0, 0.0, 0.0, 20.0, 0.0]), 86400.0),), 5400.0,
-                {"resolve_s": 5400.0})
+    m = mission({"resolve_s": 5400.0}, target=(0.0, -3000.0, 0.0, 0.0, 20.0, 0.0), deadline=86400.0)
     roe = np.array([0.0, 0.0, 0.0, 0.0, 0.0, 0.0])
-    steps = [pickle.dumps((5400.0 * k, _nav(5400.0 * k, roe + [0.0, -400.0 * k, 1.0 * k, 0, 5.0 * k, 0])))
+    steps = [pickle.dumps((5400.0 * k, nav(5400.0 * k, roe + [0.0, -400.0 * k, 1.0 * k, 0, 5.0 * k, 0])))
              for k in range(3)]
     with open(path, "wb") as fh:
         pickle.dump({"law": "hybrid_resolve", "mission": m, "steps": steps, "scenario": "test", "days": 1.0}, fh)
