@@ -152,7 +152,12 @@ def capture(days: float, scenario: str | None, out: Path) -> None:
 
         cfg = make_cfg(days)
     else:
-        cfg = load_scenario(scenario, {"run.duration_days": float(days)})
+        from sim.errors import CoveyError
+
+        try:
+            cfg = load_scenario(scenario, {"run.duration_days": float(days)})
+        except CoveyError as exc:
+            sys.exit(f"capture: {exc}")
     rec = {"law": cfg.guidance.law, "mission": None, "steps": [], "scenario": scenario or "loop_overhead",
            "days": float(days)}
     load = registry.load_law
@@ -179,8 +184,10 @@ def capture(days: float, scenario: str | None, out: Path) -> None:
         t0 = time.perf_counter()
         summary = run_scenario(cfg, Path(tmp) / "capture.h5")
         wall = time.perf_counter() - t0
+    if summary.status == "failed":
+        sys.exit(f"capture: the run failed ({summary.reason}); nothing saved")
     if rec["mission"] is None or not rec["steps"]:
-        sys.exit(f"capture: the run recorded no guidance cycle (status {getattr(summary, 'status', '?')})")
+        sys.exit(f"capture: the run recorded no guidance cycle (status {summary.status}); nothing saved")
     out.parent.mkdir(parents=True, exist_ok=True)
     with open(out, "wb") as fh:
         pickle.dump(rec, fh)
