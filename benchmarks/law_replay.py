@@ -223,8 +223,13 @@ def _other_tree(spec: str, stack: list) -> Path:
 def replay(capture_path: Path, against: str | None, repeat: int, callgrind: int) -> None:
     if not capture_path.is_file():
         sys.exit(f"replay: no capture file {capture_path} (make one with: python {Path(__file__).name} capture)")
-    with open(capture_path, "rb") as fh:
-        head = pickle.load(fh)
+    try:
+        with open(capture_path, "rb") as fh:
+            head = pickle.load(fh)
+        head["law"], head["mission"], head["steps"]
+    except Exception as exc:  # noqa: BLE001 - anything but a capture file
+        sys.exit(f"replay: {capture_path} is not a capture file of this script ({type(exc).__name__}); "
+                 f"make one with: python {Path(__file__).name} capture")
     print(f"inputs: {capture_path} ({len(head['steps'])} cycles of law {head['law']!r}, "
           f"{head.get('scenario')}, {head.get('days', 0):g} days)")
     cleanup: list[Path] = []

@@ -62,10 +62,15 @@ def test_compare_reports_the_first_cycle_that_differs(tmp_path):
     assert "1e-06" in mod._compare(rows, other)
 
 
-def test_replay_names_a_missing_file_and_a_bad_revision(tmp_path):
+def test_replay_names_a_missing_or_foreign_file_and_a_bad_revision(tmp_path):
     p = subprocess.run([sys.executable, str(SCRIPT), "replay", str(tmp_path / "nope.pkl")],
                        capture_output=True, text=True, timeout=60)
     assert p.returncode != 0 and "no capture file" in p.stderr and "Traceback" not in p.stderr
+    junk = tmp_path / "junk.pkl"
+    junk.write_text("not a capture")
+    p = subprocess.run([sys.executable, str(SCRIPT), "replay", str(junk)], capture_output=True, text=True,
+                       timeout=60)
+    assert p.returncode != 0 and "is not a capture file" in p.stderr and "Traceback" not in p.stderr
     cap = tmp_path / "inputs.pkl"
     _capture(cap)
     p = subprocess.run([sys.executable, str(SCRIPT), "replay", str(cap), "--against", "no-such-rev-xyz"],
