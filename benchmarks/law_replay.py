@@ -113,11 +113,16 @@ def _compare(a: list, b: list) -> str:
             f"a remaining delta-v where the structure matches: {worst:.3g}")
 
 
+def _worker_cmd(tree: Path, capture: Path, out: Path, n_cycles: int) -> list[str]:
+    """The command line of one replay process (see :func:`_worker`)."""
+    return [sys.executable, str(Path(__file__).resolve()), "_worker", str(tree), str(capture), str(out),
+            str(n_cycles)]
+
+
 def _replay(tree: Path, capture: Path, n_cycles: int = -1) -> dict:
     with tempfile.TemporaryDirectory() as tmp:
         out = Path(tmp) / "replay.pkl"
-        subprocess.run([sys.executable, str(Path(__file__).resolve()), "_worker", str(tree), str(capture),
-                        str(out), str(n_cycles)], check=True)
+        subprocess.run(_worker_cmd(tree, capture, out, n_cycles), check=True)
         with open(out, "rb") as fh:
             return pickle.load(fh)
 
@@ -127,9 +132,9 @@ def _instructions(tree: Path, capture: Path, n_cycles: int) -> float | None:
     if shutil.which("valgrind") is None:
         return None
     with tempfile.TemporaryDirectory() as tmp:
-        p = subprocess.run(["valgrind", "--tool=callgrind", "--callgrind-out-file=/dev/null", sys.executable,
-                            str(Path(__file__).resolve()), "_worker", str(tree), str(capture),
-                            str(Path(tmp) / "r.pkl"), str(n_cycles)], capture_output=True, text=True)
+        p = subprocess.run(["valgrind", "--tool=callgrind", "--callgrind-out-file=/dev/null",
+                            *_worker_cmd(tree, capture, Path(tmp) / "r.pkl", n_cycles)],
+                           capture_output=True, text=True)
     for line in p.stderr.splitlines():
         if "Collected :" in line:
             return int(line.split(":")[-1]) / 1e6
