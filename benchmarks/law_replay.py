@@ -4,7 +4,7 @@ A closed loop's guidance cost is hard to compare between controller versions: th
 drifts by tens of per cent within minutes, and a changed law flies another path, so the next cycle
 sees other navigation. This script takes the truth out of it.
 
-``capture`` flies a scenario once through :func:`sim.run.run_scenario` (default: the closed-loop
+``capture`` flies a scenario once through :func:`sim.loop.run.run_scenario` (default: the closed-loop
 benchmark's, ``benchmarks/loop_overhead.py``: ``demo_formation`` with ``hybrid_resolve`` at one
 cycle per orbit, ``--days`` long) and records what the law is given: the mission of its
 ``setup()`` and the time and navigation estimate of every ``step()``. The file is a Python pickle
@@ -150,7 +150,7 @@ def capture(days: float, scenario: str | None, out: Path) -> None:
     sys.path.insert(0, str(ROOT))
     sys.path.insert(0, str(ROOT / "benchmarks"))
     import guidance.registry as registry
-    from sim.scenario import load_scenario
+    from sim.scenario.reader import load_scenario
 
     if scenario is None:
         from loop_overhead import make_cfg
@@ -183,7 +183,7 @@ def capture(days: float, scenario: str | None, out: Path) -> None:
         return law
 
     registry.load_law = recording_load
-    from sim.run import run_scenario
+    from sim.loop.run import run_scenario
 
     with tempfile.TemporaryDirectory() as tmp:
         t0 = time.perf_counter()

@@ -5,7 +5,7 @@ Closed loop: ``scenarios/demo_formation.toml`` (chief + 2 deputies, 500 km sun-s
 density error; realistic navigation and actuator errors), with the duration set to ``--days``
 (default 10), both deadlines to ``--days - 1`` and law ``hybrid_resolve`` re-solving every
 ``cycle_s = resolve_s = 5400 s`` (0.95 of the chief's 5677 s orbit), flown through
-:func:`sim.run.run_scenario` exactly as ``covey run`` flies it (60 s truth samples, Eckstein-Hechler
+:func:`sim.loop.run.run_scenario` exactly as ``covey run`` flies it (60 s truth samples, Eckstein-Hechler
 mean elements and mean ROE, HDF5 log, metrics). The wall time is the whole ``run_scenario`` call
 (truth set-up and metrics included; the JVM is already booted).
 
@@ -42,7 +42,7 @@ Usage: ``python benchmarks/loop_overhead.py [--days 10] [--warmup-days 3] [--no-
 every ratio (each closed loop over the mean of the bare runs either side) and their median: the
 machine's speed drifts by tens of per cent within minutes, and one ratio is one sample.
 
-``--no-early-start`` turns off :meth:`sim.truth.TruthWorld.start_early` (the chief's segment run
+``--no-early-start`` turns off :meth:`sim.truth.world.TruthWorld.start_early` (the chief's segment run
 while the law works) to price it: it saves the chief's propagation from the critical path but
 slows the law's Python while a Java propagation runs beside it (DEVELOPERS.md, closed-loop cost).
 """
@@ -64,7 +64,7 @@ import numpy as np
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 
-from sim.scenario import load_scenario  # noqa: E402
+from sim.scenario.reader import load_scenario  # noqa: E402
 
 SCENARIO = ROOT / "scenarios" / "demo_formation.toml"
 CYCLE_S = 5400.0
@@ -108,13 +108,13 @@ def _timed(key: str, fn):
 
 def install_timers() -> None:
     """Wrap covey's functions with timers (class attributes, so every instance is timed)."""
-    import sim.actuators as act
-    import sim.engine as eng
-    import sim.meanroe as meanroe
-    import sim.navigation as nav
-    import sim.recorder as recorder
-    import sim.run as run
-    import sim.truth as truth
+    import sim.models.actuators as act
+    import sim.loop.engine as eng
+    import sim.orekit.meanroe as meanroe
+    import sim.models.navigation as nav
+    import sim.log.recorder as recorder
+    import sim.loop.run as run
+    import sim.truth.world as truth
     from guidance.registry import LAWS
 
     T = truth.TruthWorld
@@ -150,7 +150,7 @@ def install_timers() -> None:
 
 def time_sampler() -> None:
     """Wrap the truth step handler's Python method (the proxy class exists after a first world)."""
-    import sim.truth as truth
+    import sim.truth.world as truth
 
     cls = truth._SAMPLER_CLASS
     if cls is None or hasattr(cls.handleStep, "__wrapped_original__"):
@@ -178,7 +178,7 @@ def bare_seconds(cfg) -> tuple[float, list[float]]:
 def bare_threaded_seconds(cfg, threads: int) -> float:
     """The bare reference on ``threads`` threads (the closed loop's truth threads): a reference
     line, not the target's definition (one propagate() per spacecraft, one after the other)."""
-    from sim.truth import _pool
+    from sim.truth.world import _pool
 
     w = fresh_world(cfg)
     T = float(cfg.duration_s)
@@ -195,7 +195,7 @@ WORLDS: list = []
 
 def capture_worlds() -> None:
     """Keep every TruthWorld built from now on (the replay below needs the flown timelines)."""
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     init = TruthWorld.__init__
 
@@ -220,7 +220,7 @@ def replay_seconds(cfg, world, log_path: Path) -> float:
     from org.orekit.frames import LOFType
     from org.orekit.propagation.events import DateDetector
 
-    from sim.recorder import read_log
+    from sim.log.recorder import read_log
 
     log = read_log(log_path)
     names = [x.decode() if isinstance(x, bytes) else str(x) for x in log.get("maneuvers/name")]
@@ -255,7 +255,7 @@ REPLAY_GAP_M: list = []
 
 def fresh_world(cfg):
     """A TruthWorld built by the original constructor (not timed, not captured by this script)."""
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     init = TruthWorld.__init__
     while hasattr(init, "__wrapped__"):
@@ -266,7 +266,7 @@ def fresh_world(cfg):
 
 
 def closed_loop_seconds(cfg, out: Path, profile: str | None = None):
-    from sim.run import run_scenario
+    from sim.loop.run import run_scenario
 
     if profile:
         import cProfile
@@ -300,7 +300,7 @@ def main() -> None:
     ap.add_argument("--profile", default=None, help="write a cProfile of the closed loop here")
     ap.add_argument("--keep-log", default=None, help="keep the closed-loop run log at this path")
     ap.add_argument("--no-thread", action="store_true",
-                    help="write the log on the main thread (sim.run.LOG_THREAD = False)")
+                    help="write the log on the main thread (sim.loop.run.LOG_THREAD = False)")
     ap.add_argument("--repeat", type=int, default=1,
                     help="closed-loop runs in all (each followed by a bare run); prints the median ratio")
     ap.add_argument("--no-early-start", action="store_true",
@@ -309,15 +309,15 @@ def main() -> None:
     if args.repeat < 1:
         ap.error(f"--repeat {args.repeat}: a whole number of runs, 1 or more")
     if args.no_early_start:
-        import sim.truth
+        import sim.truth.world
 
-        sim.truth.TruthWorld.start_early = lambda self, t_s, names: []
+        sim.truth.world.TruthWorld.start_early = lambda self, t_s, names: []
     if args.no_thread:
-        import sim.run
+        import sim.loop.run
 
-        sim.run.LOG_THREAD = False
+        sim.loop.run.LOG_THREAD = False
 
-    from sim.orekit_boot import boot
+    from sim.orekit.boot import boot
 
     boot()
     cfg = make_cfg(args.days)
@@ -356,12 +356,12 @@ def main() -> None:
           f"({', '.join(f'{x:.2f}' for x in each_before)}), after {bare_after:.2f} s "
           f"({', '.join(f'{x:.2f}' for x in each_after)}), mean {bare:.2f} s "
           f"= {bare / (n_sc * args.days):.3f} s per spacecraft-day")
-    import sim.run
+    import sim.loop.run
 
     guid = timers.get("guidance (law.step)", 0.0)
     print(f"closed loop, run_scenario wall time          : {wall:.2f} s "
           f"= {wall / (n_sc * args.days):.3f} s per spacecraft-day "
-          f"(log-writer thread: {'on' if sim.run.LOG_THREAD else 'off'})")
+          f"(log-writer thread: {'on' if sim.loop.run.LOG_THREAD else 'off'})")
     print(f"RATIO closed loop / bare                     : {wall / bare:.3f}  (target <= 1.2)")
     harness = (wall - guid) / bare  # the loop without the law's own time, x bare
     print(f"  without the guidance law's own time         : {harness:.3f}  "

@@ -33,10 +33,10 @@ import time
 
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), ".."))
 
-from sim.config import (AttitudeModeConfig, BusConfig, EnvironmentConfig, MeanOrbitConfig,  # noqa: E402
+from sim.scenario.config import (AttitudeModeConfig, BusConfig, EnvironmentConfig, MeanOrbitConfig,  # noqa: E402
                         RunConfig, SpacecraftConfig, ThrusterConfig)
-from sim.forces import MAX_STEP_S  # noqa: E402
-from sim.truth import TruthWorld  # noqa: E402
+from sim.orekit.forces import MAX_STEP_S  # noqa: E402
+from sim.truth.world import TruthWorld  # noqa: E402
 
 R_E_M = 6378137.0
 EPOCH = "2024-06-01T00:00:00Z"

@@ -54,7 +54,7 @@ SEPARATIONS_M = (100.0, 1000.0, 5000.0)
 def boot():
     """Start the JVM the project's way if sim/orekit_boot.py exists, else directly."""
     try:
-        from sim.orekit_boot import boot as sim_boot  # noqa: WPS433 (script, not guidance)
+        from sim.orekit.boot import boot as sim_boot  # noqa: WPS433 (script, not guidance)
     except ImportError:
         sim_boot = None
     if sim_boot is not None:

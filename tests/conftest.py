@@ -23,7 +23,7 @@ def scenario_paths() -> list[Path]:
 
 
 class FakeTruthWorld:
-    """Keplerian stand-in with sim.truth.TruthWorld's interface (mean elements taken as
+    """Keplerian stand-in with sim.truth.world.TruthWorld's interface (mean elements taken as
     osculating). ``fail_at_s`` raises inside advance_to, ``stop_at_s`` reports a stop event."""
 
     fail_at_s: float | None = None
@@ -119,9 +119,9 @@ class FakeTruthWorld:
 
 @pytest.fixture
 def fake_truth(monkeypatch):
-    """Replace the Orekit side of sim.run with FakeTruthWorld; yields the class (set
+    """Replace the Orekit side of sim.loop.run with FakeTruthWorld; yields the class (set
     ``fail_at_s`` / ``stop_at_s`` on it)."""
-    import sim.run
+    import sim.loop.run
     from guidance.roe import oe_to_roe, rv_to_oe
 
     class World(FakeTruthWorld):
@@ -134,5 +134,5 @@ def fake_truth(monkeypatch):
         boot=lambda data_path=None: boot_info, TruthWorld=World,
         mean_elements=lambda t, r, v, epoch: rv_to_oe(r, v),
         mean_roe_m=lambda c, d: oe_to_roe(c, d) * np.asarray(c)[..., :1])
-    monkeypatch.setattr(sim.run, "_truth_api", lambda: api)
+    monkeypatch.setattr(sim.loop.run, "_truth_api", lambda: api)
     return World

@@ -123,10 +123,10 @@ def forbidden_imports(source: str, filename: str = "<src>") -> list[str]:
 @pytest.mark.parametrize("src", [
     "import jpype",
     "import orekit_jpype as ok",
-    "from sim.config import RunConfig",
+    "from sim.scenario.config import RunConfig",
     "from java.lang import System",
-    "def f():\n    import sim.orekit_boot\n",
-    "import importlib\nimportlib.import_module('sim.run')",
+    "def f():\n    import sim.orekit.boot\n",
+    "import importlib\nimportlib.import_module('sim.loop.run')",
     "x = __import__('orekit')",
     "from org.orekit.frames import FramesFactory",
 ])

@@ -15,8 +15,8 @@ import pytest
 from scipy.stats import kstest, rayleigh
 
 from guidance.interface import GuidanceInputError, Impulse, ModeSwitch
-from sim.actuators import (G0_MPS2, ActuatorModel, projected_area_m2)
-from sim.config import (ActuatorConfig, AttitudeModeConfig, BusConfig, GeometryConfig, PanelConfig,
+from sim.models.actuators import (G0_MPS2, ActuatorModel, projected_area_m2)
+from sim.scenario.config import (ActuatorConfig, AttitudeModeConfig, BusConfig, GeometryConfig, PanelConfig,
                         ThrusterConfig)
 from sim.errors import ScenarioError
 
@@ -264,7 +264,7 @@ def test_projected_area_of_box_modes_and_small_rotation():
 
 
 def test_projection_agrees_with_spacecraft_module():
-    sc = pytest.importorskip("sim.spacecraft")
+    sc = pytest.importorskip("sim.models.geometry")
     g = GeometryConfig(kind="box", box_x_m=0.1, box_y_m=0.2, box_z_m=0.34,
                        panels=(PanelConfig(0.3, (0.0, 0.0, 1.0), double_sided=False),
                                PanelConfig(0.2, (1.0, 1.0, 0.0))))

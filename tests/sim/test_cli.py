@@ -15,10 +15,10 @@ import sys
 import numpy as np
 import pytest
 
-import sim.cli
-import sim.scenario
-from sim.cli import _Progress, main
-from sim.recorder import read_log
+import sim.cli.main
+import sim.scenario.reader
+from sim.cli.main import _Progress, main
+from sim.log.recorder import read_log
 
 
 @pytest.mark.parametrize("argv", [["--help"], ["-h"], ["run", "-h"], ["validate", "--help"],
@@ -91,7 +91,7 @@ def test_unexpected_error_one_line_and_debug(tmp_path, repo_root, fake_truth, ca
         raise RuntimeError("unexpected")
 
     monkeypatch.delenv("COVEY_DEBUG")
-    monkeypatch.setattr("sim.scenario.load_scenario", boom)
+    monkeypatch.setattr("sim.scenario.reader.load_scenario", boom)
     assert main(argv) == 1
     err = capsys.readouterr().err
     assert "unexpected error: RuntimeError" in err and "Traceback" not in err
@@ -140,7 +140,7 @@ def test_covey_demo_short_end_to_end(tmp_path, monkeypatch, capsys):
     log = read_log(path)
     assert log.status == "ok" and log.meta["orekit_version"] not in ("", "unknown")
     assert log.meta["java_version"] and len(log.get("meta/data_files/path")) > 0
-    cfg = sim.scenario.load_scenario(sim.cli.demo_scenario_path())
+    cfg = sim.scenario.reader.load_scenario(sim.cli.main.demo_scenario_path())
     for sc in cfg.spacecraft:
         tr = log[f"spacecraft/{sc.name}/truth"]
         t = tr.t_s
@@ -184,7 +184,7 @@ def test_every_scenario_file_flies(tmp_path, scenario_paths, capsys):
         cap = capsys.readouterr()
         assert code == 0, (p, cap.err)
         log = read_log(out)
-        cfg = sim.scenario.load_scenario(p)
+        cfg = sim.scenario.reader.load_scenario(p)
         assert log.status == "ok" and log.spacecraft_names == [sc.name for sc in cfg.spacecraft]
         t = log.get(f"spacecraft/{cfg.chief.name}/truth/t_s")
         T = 0.02 * 86400.0

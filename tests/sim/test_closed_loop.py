@@ -36,10 +36,10 @@ import numpy as np
 import pytest
 
 from guidance.interface import Diagnostics, GuidanceOutput, Impulse, ModeSwitch, SpacecraftCommand
-from sim.metrics import rtn_relative
-from sim.recorder import read_log
-from sim.run import run_scenario
-from sim.scenario import load_scenario
+from sim.judge.metrics import rtn_relative
+from sim.log.recorder import read_log
+from sim.loop.run import run_scenario
+from sim.scenario.reader import load_scenario
 
 THIS = "tests.sim.test_closed_loop"
 REPO = Path(__file__).resolve().parents[2]
@@ -235,7 +235,7 @@ def test_bad_law_fails_run_and_keeps_data(tmp_path, repo_root, fake_truth, how):
 
 
 def test_law_raising_in_setup_fails_run(tmp_path, repo_root, fake_truth, capsys):
-    from sim.cli import main
+    from sim.cli.main import main
 
     out = tmp_path / "s.h5"
     code = main(["run", str(repo_root / "scenarios/demo_formation.toml"), "-o", str(out),
@@ -248,7 +248,7 @@ def test_law_raising_in_setup_fails_run(tmp_path, repo_root, fake_truth, capsys)
 
 
 def test_bad_law_cli_exit_1_one_line(tmp_path, repo_root, fake_truth, capsys):
-    from sim.cli import main
+    from sim.cli.main import main
 
     out = tmp_path / "c.h5"
     code = main(["run", str(repo_root / "scenarios/demo_formation.toml"), "-o", str(out),
@@ -336,7 +336,7 @@ ISP_S = 3000.0  # so that NAV_CYCLES cycles of BurnLaw never run out of propella
 def long_run(tmp_path_factory):
     """One run of NAV_CYCLES guidance cycles of NAV_DT_S on the Keplerian fake truth with
     BurnLaw, the navigation model NAV_MODEL and the actuator errors ACT. Returns (cfg, log)."""
-    import sim.run
+    import sim.loop.run
     from guidance.roe import oe_to_roe, rv_to_oe
 
     FakeWorld = _fake_world_class()
@@ -352,7 +352,7 @@ def long_run(tmp_path_factory):
             **{f"actuators.{k}": v for k, v in ACT.items()}}
     cfg = _demo(REPO, **over)
     with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(sim.run, "_truth_api", lambda: api)
+        mp.setattr(sim.loop.run, "_truth_api", lambda: api)
         s = run_scenario(cfg, tmp_path_factory.mktemp("long") / "long.h5")
     assert s.status == "ok", s.reason
     return cfg, s, read_log(s.path)
@@ -414,7 +414,7 @@ def _impulse_table(log):
 def test_actuator_execution_statistics_and_limits(long_run):
     from scipy import stats
 
-    from sim.actuators import G0_MPS2
+    from sim.models.actuators import G0_MPS2
 
     cfg, summary, log = long_run
     th = cfg.deputies[0].bus.thruster
@@ -512,7 +512,7 @@ def test_burns_the_propellant_cannot_pay_for_are_logged_not_flown(tmp_path, repo
     """Perfect actuators, 3 g of propellant at Isp 60 s (about 0.18 m/s): BurnLaw's burns run it
     out within two cycles; a burn is dropped exactly when its rocket-equation propellant exceeds
     what is left (Tsiolkovsky; g0 = 9.80665 m/s^2)."""
-    from sim.actuators import G0_MPS2
+    from sim.models.actuators import G0_MPS2
 
     prop0 = 0.003
     cfg = _demo(repo_root, **{"run.duration_s": 60.0, "run.log_step_s": 10.0, "guidance.cycle_s": 10.0,
@@ -563,7 +563,7 @@ def test_switches_logged_commanded_and_executed(long_run):
 
 
 # ------------------------------------------------------------------------------------------
-# Safety monitors (sim.metrics) against an independent computation from the logged truth
+# Safety monitors (sim.judge.metrics) against an independent computation from the logged truth
 # ------------------------------------------------------------------------------------------
 
 
@@ -628,7 +628,7 @@ def test_safety_monitors_flag_thresholds(tmp_path, repo_root, fake_truth):
     _check_safety_metrics(read_log(s0.path), cfg0, s0.metrics)
     assert not any(x.keep_out_violated or x.rn_separation_violated for x in s0.metrics)
     # covey run prints the flags in its table
-    from sim.metrics import METRIC_COLUMNS, format_table, table_rows
+    from sim.judge.metrics import METRIC_COLUMNS, format_table, table_rows
 
     table = format_table(table_rows(s.metrics), METRIC_COLUMNS)
     assert "keep-out (gamma), RN separation" in table and "keep-out (beta)" in table
@@ -696,12 +696,12 @@ def jvm_runs(tmp_path_factory):
     import subprocess
     import sys
 
-    from sim.cli import _parse_set
+    from sim.cli.main import _parse_set
 
     scen = REPO / "scenarios" / "demo_formation.toml"
     d = tmp_path_factory.mktemp("jvm")
     paths = {k: d / f"{k}.h5" for k in "ABC"}
-    argv = [sys.executable, "-m", "sim.cli", "run", str(scen), "-q", "-o", str(paths["A"])]
+    argv = [sys.executable, "-m", "sim.cli.main", "run", str(scen), "-q", "-o", str(paths["A"])]
     for item in JVM_SET:
         argv += ["--set", item]
     env = dict(os.environ, PYTHONHASHSEED="12345")
@@ -744,14 +744,14 @@ def test_truth_flies_the_logged_switches_and_burns(jvm_runs):
     midpoint to the mode's nominal area times the logged realised factor (DEVELOPERS.md, truth:
     'mode_index is the commanded mode (changes at t), drag_area_m2 the area in effect (changes at
     t + slew/2)'), and the burns the truth executed (/maneuvers) are the logged executed ones."""
-    from sim.seeds import stream
+    from sim.models.noise import stream
 
     cfg, p, summary = jvm_runs
     log = read_log(p["B"])
     # the log says how its truth samples and density were made (defaults: DEVELOPERS.md truth)
     assert log.attrs("spacecraft")["truth_sampler"] == "orekit_oem_writer"
     assert log.attrs("spacecraft")["truth_density_method"] == "pymsis"
-    from sim.truth import default_threads
+    from sim.truth.world import default_threads
 
     assert log.attrs("spacecraft")["truth_threads"] == min(default_threads(), len(cfg.spacecraft))
     g = "commands/switches"
@@ -768,7 +768,7 @@ def test_truth_flies_the_logged_switches_and_burns(jvm_runs):
         t = log.get(f"spacecraft/{n}/truth/t_s")
         mi = log.get(f"spacecraft/{n}/truth/mode_index")
         a = log.get(f"spacecraft/{n}/truth/drag_area_m2")
-        # realised per-run factor of the initial mode: stream act/<name>/area/<mode> (sim.seeds)
+        # realised per-run factor of the initial mode: stream act/<name>/area/<mode> (sim.models.noise)
         f0 = max(0.01, 1.0 + cfg.actuators.drag_area_sigma
                  * float(stream(cfg.seed, "act", n, "area", sc.initial_mode).standard_normal()))
         sel = np.nonzero(sw_name == n)[0]

@@ -11,7 +11,7 @@ Scenarios (scenarios/*.toml, see the ``closed-loop-scenarios`` section of DEVELO
   of the time: 25 days reach about 700 km rest to rest, 6 days about 40 km), same e/i targets.
 
 Every flown case runs once per module (module fixtures) and several checks read its log. The
-judge is ``sim.metrics`` (truth mean ROE from Orekit's Eckstein-Hechler theory, at the deadline),
+judge is ``sim.judge.metrics`` (truth mean ROE from Orekit's Eckstein-Hechler theory, at the deadline),
 never guidance code; guidance's own density model is used only to say what guidance believed.
 
 Error budget of the ideal variant (the tolerance of ``test_ideal_*_reaches_target``)
@@ -65,9 +65,9 @@ import pytest
 from guidance.constants import J2, MU_EARTH_M3PS2, OMEGA_EARTH_RADPS, R_EARTH_M
 from guidance.density import DensityModel, relative_wind_speed_mps
 from guidance.laws.base import COMMON_SETTINGS
-from sim.recorder import read_log
-from sim.run import run_scenario
-from sim.scenario import load_scenario
+from sim.log.recorder import read_log
+from sim.loop.run import run_scenario
+from sim.scenario.reader import load_scenario
 
 REPO = Path(__file__).resolve().parents[2]
 SCEN = REPO / "scenarios"
@@ -166,7 +166,7 @@ def _truth(log, sc):
 
 def _drag_eci(x, cd):
     """Drag acceleration from logged truth samples, m/s^2 (atmosphere co-rotating with the Earth
-    about the TOD z axis, covey's ECI; the truth's own force model, sim.truth)."""
+    about the TOD z axis, covey's ECI; the truth's own force model, sim.truth.world)."""
     v_rel = x["v_eci_mps"] - np.cross([0.0, 0.0, OMEGA_EARTH_RADPS], x["r_eci_m"])
     k = 0.5 * x["density_kgpm3"] * cd * x["drag_area_m2"] / x["mass_kg"]
     return -(k * np.linalg.norm(v_rel, axis=1))[:, None] * v_rel
@@ -439,7 +439,7 @@ def _realistic_rows(runs: dict[str, Flown]):
 def _check_realistic_errors(runs):
     """Issue 4, "Realistic variant": the cadenced re-solve ends closer along-track than the
     single-solve hybrid; the single-solve hybrid uses less propulsive dv than propulsion only
-    (the judge: sim.metrics, executed impulses and truth mean ROE at the deadline)."""
+    (the judge: sim.judge.metrics, executed impulses and truth mean ROE at the deadline)."""
     for n, res, sgl, prop in _realistic_rows(runs):
         assert abs(res.final_error_m[1]) < abs(sgl.final_error_m[1]), n
         assert sgl.dv_total_mps < prop.dv_total_mps, n

@@ -15,10 +15,10 @@ import pytest
 from scipy.integrate import solve_ivp
 
 from guidance.constants import MU_EARTH_M3PS2 as MU
-from sim.config import ErrorAxesConfig, NavErrorConfig, NavigationConfig
+from sim.scenario.config import ErrorAxesConfig, NavErrorConfig, NavigationConfig
 from sim.errors import ScenarioError
-from sim.navigation import REALISTIC_NAVIGATION, ErrorProcess, NavigationModel, kepler_propagate
-from sim.seeds import source_key, stream
+from sim.models.navigation import REALISTIC_NAVIGATION, ErrorProcess, NavigationModel, kepler_propagate
+from sim.models.noise import source_key, stream
 
 A_M = 6378137.0 + 500e3
 N_RADPS = math.sqrt(MU / A_M**3)

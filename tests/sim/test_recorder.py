@@ -11,9 +11,9 @@ import numpy as np
 import pytest
 
 from sim.errors import LogFormatError, PropagationError
-from sim.recorder import SCHEMA_VERSION, RunRecorder, read_log, units_for
-from sim.run import run_scenario
-from sim.scenario import load_scenario
+from sim.log.recorder import SCHEMA_VERSION, RunRecorder, read_log, units_for
+from sim.loop.run import run_scenario
+from sim.scenario.reader import load_scenario
 
 
 def _all_datasets(path):

@@ -18,10 +18,10 @@ import zipfile
 
 import pytest
 
-from sim.cli import demo_scenario_path, main
-from sim.config import RunConfig
+from sim.cli.main import demo_scenario_path, main
+from sim.scenario.config import RunConfig
 from sim.errors import EnvironmentSetupError, ScenarioError
-from sim.scenario import (
+from sim.scenario.reader import (
     PRESET_DEFAULTS,
     load_scenario,
     parse_scenario,
@@ -132,7 +132,7 @@ def test_validate_in_a_fresh_process_exit_code_and_no_jvm(tmp_path, repo_root):
     """Real process exit code; validation must not load JPype/Orekit."""
     bad = tmp_path / "bad.toml"
     bad.write_text(MINIMAL.replace("mass_kg = 4.0", 'mass_kg = "4"'))
-    code = ("import sys; from sim.cli import main; rc = main(sys.argv[1:]); "
+    code = ("import sys; from sim.cli.main import main; rc = main(sys.argv[1:]); "
             "print('jpype' in sys.modules, 'orekit_jpype' in sys.modules); sys.exit(rc)")
     for path, rc in ((bad, 2), (repo_root / "scenarios/demo_drift.toml", 0)):
         out = subprocess.run([sys.executable, "-c", code, "validate", str(path)], cwd=repo_root,
@@ -141,7 +141,7 @@ def test_validate_in_a_fresh_process_exit_code_and_no_jvm(tmp_path, repo_root):
         assert out.stdout.strip().endswith("False False"), out.stdout
         assert "Traceback" not in out.stderr
     assert "bus.cube.mass_kg" in subprocess.run(
-        [sys.executable, "-m", "sim.cli", "validate", str(bad)], cwd=repo_root,
+        [sys.executable, "-m", "sim.cli.main", "validate", str(bad)], cwd=repo_root,
         capture_output=True, text=True, timeout=120).stderr
 
 
@@ -377,7 +377,7 @@ def test_solar_activity_file_source(tmp_path):
 def test_per_law_settings_tables_reach_only_their_law():
     # [guidance.settings.<law>] is read only when that law is flown, merged over the common keys;
     # the other laws' tables are dropped, other tables pass through to the law unchanged
-    from sim.scenario import law_settings
+    from sim.scenario.reader import law_settings
 
     raw = {"chief_mode": "nominal", "weak_drag_margin": 0.5,
            "hybrid_resolve": {"resolve_mode": "drag_only", "weak_drag_margin": 0.3},

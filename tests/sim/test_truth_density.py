@@ -1,6 +1,6 @@
 """The logged truth density computed in batch (numpy + pymsis) against Orekit's own NRLMSISE00.
 
-sim.truth computes the logged NRLMSISE-00 density (mean local solar time) of all samples at drain
+sim.truth.world computes the logged NRLMSISE-00 density (mean local solar time) of all samples at drain
 time with pymsis instead of one ``NRLMSISE00.getDensity`` call per sample. The reference here is
 Orekit's ``NRLMSISE00.getDensity`` itself (the per-sample path, forced by
 ``TruthWorld(batched_density=False)``), and Orekit's exact TOD -> ITRF transform and
@@ -15,7 +15,7 @@ import sys
 import numpy as np
 import pytest
 
-from sim.config import (AttitudeModeConfig, BusConfig, DensityErrorConfig, EnvironmentConfig, GeometryConfig,
+from sim.scenario.config import (AttitudeModeConfig, BusConfig, DensityErrorConfig, EnvironmentConfig, GeometryConfig,
                         MeanOrbitConfig, RunConfig, SolarActivityConfig, SpacecraftConfig, ThrusterConfig)
 
 pytestmark = pytest.mark.orekit
@@ -40,7 +40,7 @@ def make_run(*, env: EnvironmentConfig, duration_s: float, epoch: str = EPOCH, d
 
 def fly(run: RunConfig, batched: bool, cycle_s: float = 5400.0) -> tuple[object, dict[str, dict[str, np.ndarray]]]:
     """Fly a run in guidance-cycle chunks, draining after each; returns the world and the samples."""
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     w = TruthWorld(run, batched_density=batched)
     parts: dict[str, list[dict]] = {n: [] for n in w.names}
@@ -105,7 +105,7 @@ def test_tod_to_itrf_and_geodetic_match_orekit():
     # 2 cm), geodetic latitude and longitude (as arcs on the ellipsoid) and height within 1 mm.
     from org.hipparchus.geometry.euclidean.threed import Vector3D
 
-    from sim.truth import TOD_GRID_S, TruthWorld, geodetic_from_ecef
+    from sim.truth.world import TOD_GRID_S, TruthWorld, geodetic_from_ecef
 
     w = TruthWorld(make_run(env=EnvironmentConfig(preset="ideal"), duration_s=2 * 86400.0))
     assert w.density_method == "pymsis"
@@ -138,7 +138,7 @@ def test_tod_to_itrf_and_geodetic_match_orekit():
 def test_density_method_falls_back_to_orekit_where_the_batch_is_not_exact(monkeypatch):
     # The batch reproduces NRLMSISE-00 in mean local solar time only; everything else stays on
     # Orekit's per-sample getDensity (source: sim/truth.py contract; no outside reference needed).
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     def method(**kw):
         return TruthWorld(make_run(env=EnvironmentConfig(preset="ideal", **kw), duration_s=3600.0)).density_method

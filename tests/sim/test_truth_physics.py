@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from sim.config import (AttitudeModeConfig, BusConfig, DensityErrorConfig, EnvironmentConfig, EventsConfig,
+from sim.scenario.config import (AttitudeModeConfig, BusConfig, DensityErrorConfig, EnvironmentConfig, EventsConfig,
                         GeometryConfig, MeanOrbitConfig, RunConfig, SolarActivityConfig, SpacecraftConfig,
                         ThrusterConfig)
 
@@ -82,7 +82,7 @@ def fit_slope(t, y):
 
 
 def mean_of(world, samples, name):
-    from sim.meanroe import mean_elements
+    from sim.orekit.meanroe import mean_elements
 
     s = samples[name]
     return mean_elements(s["t_s"], s["r_eci_m"], s["v_eci_mps"], world.run.epoch_utc)
@@ -95,7 +95,7 @@ def mean_of(world, samples, name):
 
 def test_boot_info_lists_the_data_and_is_idempotent():
     from sim.errors import EnvironmentSetupError
-    from sim.orekit_boot import boot
+    from sim.orekit.boot import boot
 
     info = boot()
     assert boot() is info and boot(info.data_path) is info
@@ -110,7 +110,7 @@ def test_boot_info_lists_the_data_and_is_idempotent():
 
 
 def test_bad_data_path_is_a_clear_error_before_the_jvm():
-    code = ("from sim.orekit_boot import boot\nfrom sim.errors import EnvironmentSetupError\n"
+    code = ("from sim.orekit.boot import boot\nfrom sim.errors import EnvironmentSetupError\n"
             "try:\n    boot('/no/such/orekit-data')\nexcept EnvironmentSetupError as e:\n    print('ERR', e)\n")
     out = subprocess.run([sys.executable, "-c", code], cwd=REPO, capture_output=True, text=True, timeout=60)
     assert "ERR Orekit data path '/no/such/orekit-data' does not exist" in out.stdout
@@ -124,7 +124,7 @@ def test_data_path_order_and_jvm_fallback(monkeypatch, tmp_path):
 
     import jpype
 
-    from sim import orekit_boot
+    from sim.orekit import boot as orekit_boot
     from sim.errors import EnvironmentSetupError
 
     monkeypatch.setenv("COVEY_OREKIT_DATA", str(tmp_path))
@@ -149,8 +149,8 @@ def test_data_path_order_and_jvm_fallback(monkeypatch, tmp_path):
 
 def test_cssi_span_matches_orekit_min_max_dates():
     # Reference: Orekit's own CssiSpaceWeatherData.getMinDate/getMaxDate on the same file.
-    from sim.forces import cssi_sections, cssi_span, find_cssi_file, solar_activity_span
-    from sim.orekit_boot import boot
+    from sim.orekit.forces import cssi_sections, cssi_span, find_cssi_file, solar_activity_span
+    from sim.orekit.boot import boot
 
     info = boot()
     path = find_cssi_file(info.data_path)
@@ -167,7 +167,7 @@ def test_cssi_span_matches_orekit_min_max_dates():
 def test_constant_solar_activity_file_reads_back_in_orekit():
     # Reference: Orekit's CssiSpaceWeatherData reading the written file (F10.7 of the previous day,
     # centred 81-day mean, 7-element ap array).
-    from sim.forces import ForceEnvironment, absolute_date
+    from sim.orekit.forces import ForceEnvironment, absolute_date
 
     sa = SolarActivityConfig(source="constant", f107_sfu=123.4, f107a_sfu=111.1, ap=27.0)
     fe = ForceEnvironment(env_only(atmosphere="nrlmsise00", solar_activity=sa), EPOCH, 5 * 86400.0)
@@ -184,8 +184,8 @@ def test_other_atmospheres_build_and_are_consistent_with_nrlmsise00():
     # measured 0.43-0.88 x NRLMSISE-00 on 2019-2025 points, not investigated further: a factor-three
     # band only. Harris-Priester (no solar input): density must fall with altitude (hydrostatic
     # balance). The "file" source given the bundled CSSI file must give exactly the "cssi" result.
-    from sim.forces import ForceEnvironment, absolute_date, find_cssi_file
-    from sim.orekit_boot import boot
+    from sim.orekit.forces import ForceEnvironment, absolute_date, find_cssi_file
+    from sim.orekit.boot import boot
 
     boot()
     from org.orekit.bodies import GeodeticPoint
@@ -216,8 +216,8 @@ def test_other_atmospheres_build_and_are_consistent_with_nrlmsise00():
 def test_mode_rotation_convention_matches_orekit_lofoffset():
     # Reference: Orekit LofOffset(frame, LOFType.VNC, RotationOrder.XYZ, a1, a2, a3), the attitude
     # law the AttitudeModeConfig docstring refers to.
-    from sim.orekit_boot import boot
-    from sim.spacecraft import velocity_direction_body
+    from sim.orekit.boot import boot
+    from sim.models.geometry import velocity_direction_body
 
     boot()
     from org.orekit.attitudes import LofOffset
@@ -246,7 +246,7 @@ def test_mode_rotation_convention_matches_orekit_lofoffset():
 
 def test_two_body_period_is_keplers_third_law():
     # Source: Kepler's third law T = 2 pi sqrt(a^3 / mu) (two-body problem; mu of the field file).
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     run = make_run(alt_km=700.0, e=0.01, i_deg=50.0, argp_deg=40.0, u_deg=10.0, env=env_only(gravity_degree=0),
                    log_step_s=600.0)
@@ -268,7 +268,7 @@ def test_two_body_period_is_keplers_third_law():
 def test_sun_synchronous_raan_drift_over_five_days():
     # Source: sun-synchronous condition, RAAN rate = 360 deg / 365.2422 d; inclination from the J2
     # secular rate (Vallado sect. 9.6 [memory]). 20x20 field, mean initial state in TOD.
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     a = R_E_M + 500e3
     run = make_run(alt_km=500.0, e=1e-4, i_deg=sso_inclination_deg(a), env=env_only(gravity_degree=20, gravity_order=20),
@@ -291,7 +291,7 @@ def test_sun_synchronous_raan_drift_over_five_days():
 def decay_runs():
     """Two days at 450 km: chief in max_drag, deputy (same initial state) in min_drag, NRLMSISE-00
     with the CSSI data, 20x20 gravity; and a gravity-only twin."""
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     days = 2.0
     kw = dict(alt_km=450.0, i_deg=97.2, chief_mode="max_drag", deputies=[("lo", "min_drag", [0.0] * 6)],
@@ -372,8 +372,8 @@ def test_nrlmsise00_matches_the_reference_fortran():
     # observed F10.7, the day's centred 81-day observed mean, daily Ap (switch 9 = 1). Mean local
     # solar time in both. 36 points, 300-700 km: relative density difference <= 1e-3.
     pymsis = pytest.importorskip("pymsis")
-    from sim.forces import ForceEnvironment, absolute_date, find_cssi_file
-    from sim.orekit_boot import boot
+    from sim.orekit.forces import ForceEnvironment, absolute_date, find_cssi_file
+    from sim.orekit.boot import boot
 
     fe = ForceEnvironment(env_only(atmosphere="nrlmsise00", local_solar_time="mean"), EPOCH, 0.0)
     from org.orekit.bodies import GeodeticPoint
@@ -410,8 +410,8 @@ def test_nrlmsise00_matches_the_reference_fortran():
 def test_deputy_placed_at_mean_roe_reads_back_within_a_metre():
     # Reference: Orekit's Eckstein-Hechler theory (mean -> osculating for the placement, osculating
     # -> mean for the readback) and the ROE definition of Koenig et al., JGCD 40(7), 2017, eq. 2.
-    from sim.meanroe import mean_elements, mean_roe_m
-    from sim.truth import TruthWorld
+    from sim.orekit.meanroe import mean_elements, mean_roe_m
+    from sim.truth.world import TruthWorld
 
     roe = np.array([50.0, 5000.0, 200.0, -80.0, 120.0, 300.0])
     w = TruthWorld(make_run(e=5e-4, argp_deg=30.0, deputies=[("d1", "nominal", roe), ("d2", "nominal", -roe)]))
@@ -431,7 +431,7 @@ def test_tangential_impulse_changes_mean_a_and_mass_as_expected():
     # (Vallado, Fundamentals of Astrodynamics and Applications, sect. 9.5 [memory]; row da = [0, 2, 0]
     # of the impulsive ROE input matrix, Gaias et al., JGCD 38(6), 2015). Rocket equation
     # m+ = m- exp(-dv / (Isp g0)) (Tsiolkovsky; g0 = 9.80665 m/s^2, CGPM 1901).
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     dv = 0.05
     run = make_run(deputies=[("twin", "nominal", [0.0] * 6)], log_step_s=60.0)
@@ -466,7 +466,7 @@ def test_schedules_loaded_between_advances_apply_at_their_exact_epochs():
     # Reference: Orekit's event handling (DateDetector / ImpulseManeuver, drag-driver span
     # transitions); "exact" = the impulse event date and the drag-area transition date are the
     # commanded ones, and the trajectory is unchanged before them.
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     run = make_run(deputies=[("d", "nominal", [0.0] * 6), ("twin", "nominal", [0.0] * 6)], log_step_s=30.0)
     w = TruthWorld(run)
@@ -502,7 +502,7 @@ def test_schedules_loaded_between_advances_apply_at_their_exact_epochs():
 def test_samples_are_on_the_grid_in_tod_and_match_the_exact_state():
     # Reference: Orekit's own GCRF -> TOD transform (state.getPVCoordinates(TOD)) at a time off the
     # 1800 s transform grid.
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     w = TruthWorld(make_run(log_step_s=30.0))
     w.advance_to(1000.0)
@@ -524,7 +524,7 @@ def test_altitude_floor_stops_every_spacecraft_at_the_same_time():
     # Reference: geodetic altitude above the WGS-84 ellipsoid (Orekit AltitudeDetector); a
     # near-circular orbit of mean a = Re + 500 km starts at its northernmost point (about 524 km
     # geodetic) and passes the equator at about 507 km: it crosses a 510 km floor on the way.
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     run = make_run(u_deg=90.0, deputies=[("d", "nominal", [0.0, 2000.0, 0, 0, 0, 0])],
                    events=EventsConfig(min_altitude_km=510.0), env=env_only(gravity_degree=2), log_step_s=60.0)
@@ -545,7 +545,7 @@ def test_altitude_floor_stops_every_spacecraft_at_the_same_time():
 
 def test_keep_out_radius_stops_at_the_first_sample_inside():
     # Reference: plain Euclidean separation of the sampled TOD positions.
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     run = make_run(deputies=[("d", "nominal", [10.0, 150.0, 0, 0, 0, 0])], env=env_only(gravity_degree=2),
                    events=EventsConfig(keep_out_radius_m=100.0), log_step_s=60.0)
@@ -564,7 +564,7 @@ def test_density_error_stream_is_seeded_and_gauss_markov():
     # Source: first-order Gauss-Markov process x_{k+1} = phi x_k + sigma sqrt(1 - phi^2) w_k,
     # phi = exp(-dt/tau) (Gelb, Applied Optimal Estimation, 1974 [memory]): stationary sigma and
     # lag-one correlation phi, checked on a long run; same seed -> same stream.
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     de = DensityErrorConfig(bias=0.1, sigma=0.2, tau_s=6000.0)
     env = env_only(atmosphere="harris_priester", density_error=de)
@@ -587,7 +587,7 @@ def test_density_error_scales_the_drag_decay():
     # [memory]): a +50 % truth density bias gives 1.5 x the decay of the unbiased world (within 3 %);
     # with a Gauss-Markov error the decay over the day scales by sum(f_k rho_k) / sum(rho_k) (the
     # density-weighted mean factor, within 3 %); logged densities carry the factor.
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     kw = dict(alt_km=420.0, duration_s=86400.0, log_step_s=600.0, chief_mode="max_drag", seed=11)
     env = env_only(gravity_degree=2, atmosphere="nrlmsise00")

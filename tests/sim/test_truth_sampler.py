@@ -18,7 +18,7 @@ pytestmark = pytest.mark.orekit
 
 
 def _fly(java: bool, log_step_s: float, chunks_s, impulses, switches, threads=None, deputies=1):
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     deps = [(f"dep{k}" if k else "dep", "nominal", [0.0, 2000.0 * (k + 1), 0.0, 100.0, 0.0, 100.0 * (k + 1)])
             for k in range(deputies)]
@@ -74,7 +74,7 @@ def test_spacecraft_propagated_in_parallel_give_the_same_truth_bit_for_bit():
 
 def test_bad_thread_count_names_the_variable(monkeypatch):
     from sim.errors import ScenarioError
-    from sim.truth import TRUTH_THREADS_ENV, default_threads
+    from sim.truth.world import TRUTH_THREADS_ENV, default_threads
 
     monkeypatch.setenv(TRUTH_THREADS_ENV, "two")
     with pytest.raises(ScenarioError) as err:
@@ -88,7 +88,7 @@ def test_early_segments_give_the_same_truth_and_are_discarded_when_changed():
     # start_early begins the chief's segment while the caller "thinks"; advance_to uses it. A
     # change of that spacecraft's impulses or schedule in between discards it (run again): the
     # truth never depends on the early start
-    from sim.truth import TruthWorld
+    from sim.truth.world import TruthWorld
 
     run = make_run(deputies=[("dep", "nominal", [0.0, 2000.0, 0.0, 100.0, 0.0, 100.0])], bus=cubesat_bus(),
                    duration_s=10800.0, log_step_s=60.0)

@@ -1,14 +1,14 @@
 """The closed loop: truth -> navigation -> guidance law -> actuators -> truth, cycle by cycle.
 
-:class:`ClosedLoopEngine` extends the free-drift :class:`sim.run.Engine` with the guidance cycle.
+:class:`ClosedLoopEngine` extends the free-drift :class:`sim.loop.run.Engine` with the guidance cycle.
 At each cycle time ``t`` it
 
-1. reads the truth states and makes navigation estimates (:mod:`sim.navigation`);
+1. reads the truth states and makes navigation estimates (:mod:`sim.models.navigation`);
 2. calls the law (``step(t, nav)``) and checks its answer (types, finite numbers, known modes,
    times not in the past); a law that raises or answers badly ends the run as ``failed``
    with the reason and traceback in the log, everything recorded so far kept;
 3. keeps each spacecraft's latest plan and passes the items that fall in ``[t, t_next)``
-   through the actuator models (:mod:`sim.actuators`): burns with execution errors and limits,
+   through the actuator models (:mod:`sim.models.actuators`): burns with execution errors and limits,
    mode switches with slew and realised drag-area factors;
 4. loads those into the truth world and advances it continuously to ``t_next`` (burns and
    switches are events inside the integration, not restarts).
@@ -37,13 +37,13 @@ from guidance.interface import (
     SpacecraftCommand,
 )
 
-from .actuators import ActuatorModel
-from .config import RunConfig
-from .errors import CoveyError
-from .mission import build_mission
-from .navigation import NavigationModel
-from .recorder import RunRecorder
-from .run import Engine, ProgressFn
+from sim.models.actuators import ActuatorModel
+from sim.scenario.config import RunConfig
+from sim.errors import CoveyError
+from sim.loop.mission import build_mission
+from sim.models.navigation import NavigationModel
+from sim.log.recorder import RunRecorder
+from sim.loop.run import Engine, ProgressFn
 
 _EPS_T = 1e-6
 
@@ -138,7 +138,7 @@ class ClosedLoopEngine(Engine):
     Parameters
     ----------
     cfg, rec, world, api, progress
-        As :class:`sim.run.Engine`.
+        As :class:`sim.loop.run.Engine`.
     law : GuidanceLaw
         A constructed law (not yet set up).
     """

@@ -49,12 +49,12 @@ from typing import Callable, Mapping, Sequence
 
 import numpy as np
 
-from sim.config import RunConfig, SpacecraftConfig
+from sim.scenario.config import RunConfig, SpacecraftConfig
 from sim.errors import PropagationError, ScenarioError
-from sim.forces import MAX_STEP_S, ForceEnvironment
-from sim.meanroe import deputy_mean_from_roe
-from sim.orekit_boot import BootInfo, boot
-from sim import spacecraft as scgeo
+from sim.orekit.forces import MAX_STEP_S, ForceEnvironment
+from sim.orekit.meanroe import deputy_mean_from_roe
+from sim.orekit.boot import BootInfo, boot
+from sim.models import geometry as scgeo
 
 DENSITY_ERROR_SPAWN_KEY = 0x44454E
 """Spawn key of the density-error random stream (ASCII ``"DEN"``):
@@ -208,7 +208,7 @@ class _Switch:
 def new_propagator(forces: ForceEnvironment, orbit):
     """The truth's integrator settings: a NumericalPropagator on DormandPrince853 with Orekit's
     tolerances for ``position_tolerance_m`` in equinoctial elements, minimum step 1 ms, step cap
-    :data:`sim.forces.MAX_STEP_S`, equinoctial orbit type and the environment's ``mu``; no force
+    :data:`sim.orekit.forces.MAX_STEP_S`, equinoctial orbit type and the environment's ``mu``; no force
     model, state, handler or detector yet. Returns ``(propagator, integrator)`` (Orekit's
     propagator does not give its integrator back; set its initial step before each call)."""
     from org.hipparchus.ode.nonstiff import DormandPrince853Integrator
@@ -459,7 +459,7 @@ class _MsisBatch:
     """
 
     def __init__(self, world: "TruthWorld", pymsis_module):
-        from sim.forces import parse_epoch
+        from sim.orekit.forces import parse_epoch
 
         f = world.forces
         self.world = world
@@ -568,7 +568,7 @@ class TruthWorld:
     ----------
     run : RunConfig
     boot_info : BootInfo or None
-        From :func:`sim.orekit_boot.boot`; booted here (with ``run.orekit_data``) when None.
+        From :func:`sim.orekit.boot.boot`; booted here (with ``run.orekit_data``) when None.
     batched_density : bool or None
         Logged density of NRLMSISE-00 (mean local solar time) computed in batch with pymsis at
         :meth:`drain_samples` (True) or by Orekit's ``getDensity`` per sample (False); None takes
@@ -590,7 +590,7 @@ class TruthWorld:
     t_s : float
         Current time, s since the epoch.
     boot_info : BootInfo
-    forces : sim.forces.ForceEnvironment
+    forces : sim.orekit.forces.ForceEnvironment
     density_method : str
         How the logged density is computed: ``"pymsis"`` (batched), ``"orekit"`` (per sample) or
         ``"none"`` (no atmosphere: zeros).
@@ -656,7 +656,7 @@ class TruthWorld:
         import datetime as _dt
 
         from org.orekit.time import TimeScalesFactory
-        from sim.forces import parse_epoch
+        from sim.orekit.forces import parse_epoch
 
         span = float(self.run.duration_s) + 86400.0
         end = f.epoch.shiftedBy(span).getComponents(TimeScalesFactory.getUTC())

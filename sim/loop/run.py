@@ -34,12 +34,12 @@ import numpy as np
 
 from guidance.interface import ROE_NAMES, GuidanceInputError
 
-from . import __version__
-from .config import RunConfig
-from .errors import CoveyError, EnvironmentSetupError, PropagationError
-from .metrics import run_metrics, write_metrics
-from .recorder import RunRecorder
-from .scenario import resolve_orekit_data
+from sim import __version__
+from sim.scenario.config import RunConfig
+from sim.errors import CoveyError, EnvironmentSetupError, PropagationError
+from sim.judge.metrics import run_metrics, write_metrics
+from sim.log.recorder import RunRecorder
+from sim.scenario.reader import resolve_orekit_data
 
 __all__ = ["RunSummary", "Engine", "BufferedLog", "run_scenario", "git_commit", "MEAN_OE_NAMES"]
 
@@ -102,7 +102,9 @@ def git_commit() -> str:
 def _truth_api() -> SimpleNamespace:
     """The Orekit-side functions a run needs, imported late (validation never loads them).
     Tests replace this function to fly a fake truth world."""
-    from . import meanroe, orekit_boot, truth
+    from sim.orekit import meanroe
+    from sim.orekit import boot as orekit_boot
+    from sim.truth import world as truth
 
     return SimpleNamespace(boot=orekit_boot.boot, TruthWorld=truth.TruthWorld,
                            mean_elements=meanroe.mean_elements, mean_roe_m=meanroe.mean_roe_m)
@@ -189,7 +191,7 @@ LOG_WRITE_WALL_S = 30.0
 
 
 class BufferedLog:
-    """A :class:`sim.recorder.RunRecorder` whose :meth:`append` calls are kept in memory and
+    """A :class:`sim.log.recorder.RunRecorder` whose :meth:`append` calls are kept in memory and
     written group by group in one append each (:meth:`write`).
 
     One h5py append costs about 0.3-1 ms whatever its size (resize, selection, chunk
@@ -319,9 +321,9 @@ class Engine:
     cfg : RunConfig
     rec : RunRecorder
     world : TruthWorld
-        The truth (``sim.truth.TruthWorld`` or anything with its interface).
+        The truth (``sim.truth.world.TruthWorld`` or anything with its interface).
     api : namespace
-        ``mean_elements`` and ``mean_roe_m`` (``sim.meanroe``).
+        ``mean_elements`` and ``mean_roe_m`` (``sim.orekit.meanroe``).
     progress : callable, optional
         ``progress(t_s, duration_s)`` once at the start and after every cycle.
     """
@@ -501,7 +503,7 @@ def _write_start_meta(rec: RunRecorder, cfg: RunConfig, data_path: str | None, l
         h5py_version=h5py.__version__, hdf5_version=h5py.version.hdf5_version,
         run_name=cfg.name, epoch_utc=cfg.epoch_utc, duration_s=cfg.duration_s,
         log_step_s=cfg.log_step_s, cycle_s=cfg.guidance.cycle_s, guidance_law=cfg.guidance.law,
-        seed=cfg.seed, seed_scheme="numpy SeedSequence(seed) spawn keys per error source (sim.seeds)",
+        seed=cfg.seed, seed_scheme="numpy SeedSequence(seed) spawn keys per error source (sim.models.noise)",
         source_path=cfg.source_path, overrides_json=json.dumps(dict(cfg.overrides), default=str),
         orekit_data_requested=data_path or "", orekit_data_from=label,
         started_utc=time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()),
@@ -529,7 +531,7 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     Parameters
     ----------
     cfg : RunConfig
-        From :func:`sim.scenario.load_scenario`.
+        From :func:`sim.scenario.reader.load_scenario`.
     out_path : str or path-like
         The run log (``.h5``); written as ``out_path.part`` and renamed when closed.
     progress : callable, optional
@@ -578,7 +580,7 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
         if law is None:
             engine = Engine(cfg, log, world, api, progress)
         else:
-            from .engine import ClosedLoopEngine
+            from sim.loop.engine import ClosedLoopEngine
 
             engine = ClosedLoopEngine(cfg, log, world, api, progress, law)
         with frozen_heap():
@@ -620,7 +622,7 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     final = dict(engine.final_roe) if engine else {}
     errors = {d.name: final[d.name] - np.asarray(d.target_roe_m, dtype=float)
               for d in cfg.deputies if d.target_roe_m is not None and d.name in final}
-    for m in metrics:  # judged at the deadline (sim.metrics), not at the last sample
+    for m in metrics:  # judged at the deadline (sim.judge.metrics), not at the last sample
         errors[m.name] = np.asarray(m.final_error_m, dtype=float)
     return RunSummary(
         path=out, status=status, reason=reason, name=cfg.name,

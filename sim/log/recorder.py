@@ -23,7 +23,7 @@ from typing import Any, Iterator, Mapping
 import h5py
 import numpy as np
 
-from .errors import LogFormatError
+from sim.errors import LogFormatError
 
 __all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "RunRecorder", "RunLog", "read_log", "units_for"]
 

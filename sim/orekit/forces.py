@@ -5,15 +5,15 @@ The top of this module imports no Java: the pure-Python helpers (:func:`cssi_spa
 :func:`cssi_sections`, :func:`solar_activity_span`, :func:`resolve_environment`,
 :func:`write_constant_cssi`) can be used by a scenario validator before the JVM exists. The
 Orekit objects are built by :class:`ForceEnvironment`, which boots the JVM through
-:mod:`sim.orekit_boot`.
+:mod:`sim.orekit.boot`.
 
 Everything that runs inside a force evaluation is Orekit's Java: solar activity "constant" is a
 CSSI-format file written with constant values and read by ``CssiSpaceWeatherData``; attitude-mode
 drag areas and the truth density error are drag-parameter-driver spans set before each
-``propagate()`` (see :mod:`sim.truth`).
+``propagate()`` (see :mod:`sim.truth.world`).
 
 How to add a force model: see the ``truth`` section of DEVELOPERS.md (in short: add the config
-field in ``sim.config.EnvironmentConfig``, build the Orekit object in
+field in ``sim.scenario.config.EnvironmentConfig``, build the Orekit object in
 :meth:`ForceEnvironment.static_forces`, and add a check against an outside reference in
 ``tests/sim/test_truth_physics.py``).
 """
@@ -30,7 +30,7 @@ import tempfile
 import zipfile
 from typing import Any
 
-from sim.config import EnvironmentConfig, SolarActivityConfig
+from sim.scenario.config import EnvironmentConfig, SolarActivityConfig
 from sim.errors import EnvironmentSetupError, ScenarioError
 
 CSSI_FILE_PATTERN = re.compile(r"^S(?:pace)?W(?:eather)?-(?:All)?.*\.txt$")
@@ -198,7 +198,7 @@ def solar_activity_span(env: EnvironmentConfig, data_path: str | None = None) ->
     ----------
     env : EnvironmentConfig
     data_path : str or None
-        Orekit data folder or zip (``None``: same resolution as :func:`sim.orekit_boot.boot`).
+        Orekit data folder or zip (``None``: same resolution as :func:`sim.orekit.boot.boot`).
 
     Returns
     -------
@@ -217,7 +217,7 @@ def solar_activity_span(env: EnvironmentConfig, data_path: str | None = None) ->
         return cssi_span(env.solar_activity.path)
     if src != "cssi":
         raise ScenarioError("environment.solar_activity.source", src, "'cssi', 'file' or 'constant'")
-    from sim.orekit_boot import resolve_data_path
+    from sim.orekit.boot import resolve_data_path
 
     path, _ = resolve_data_path(data_path)
     if env.atmosphere == "jb2008":
@@ -313,7 +313,7 @@ def parse_epoch(epoch_utc: str) -> _dt.datetime:
 
 
 def absolute_date(epoch_utc: str):
-    """Orekit ``AbsoluteDate`` (UTC) of an ISO 8601 UTC string. Needs :func:`sim.orekit_boot.boot`."""
+    """Orekit ``AbsoluteDate`` (UTC) of an ISO 8601 UTC string. Needs :func:`sim.orekit.boot.boot`."""
     from org.orekit.time import AbsoluteDate, TimeScalesFactory
 
     t = parse_epoch(epoch_utc)
@@ -333,7 +333,7 @@ class ForceEnvironment:
     duration_s : float
         Run duration, s (same use).
     data_path : str or None
-        Orekit data (see :func:`sim.orekit_boot.boot`).
+        Orekit data (see :func:`sim.orekit.boot.boot`).
 
     Attributes
     ----------
@@ -355,7 +355,7 @@ class ForceEnvironment:
 
     def __init__(self, env: EnvironmentConfig, epoch_utc: str, duration_s: float = 0.0,
                  data_path: str | None = None):
-        from sim.orekit_boot import boot
+        from sim.orekit.boot import boot
 
         boot(data_path)
         from org.orekit.bodies import CelestialBodyFactory, OneAxisEllipsoid
@@ -423,7 +423,7 @@ class ForceEnvironment:
 
         if name == "nrlmsise00":
             self.space_weather = self._cssi_data()
-            # sim.truth's batched logged density (pymsis) reproduces this constructor: UT1 (IERS
+            # sim.truth.world's batched logged density (pymsis) reproduces this constructor: UT1 (IERS
             # 2010, simple EOP) for the model time, default switches
             atm = NRLMSISE00(self.space_weather, self.sun, self.earth)
             lst = self.env.local_solar_time

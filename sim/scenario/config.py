@@ -1,6 +1,6 @@
 """The validated scenario: typed, immutable, units in every name.
 
-``sim.scenario`` parses and validates a TOML file into these classes; everything downstream
+``sim.scenario.reader`` parses and validates a TOML file into these classes; everything downstream
 (truth world, engine, recorder) consumes only these. Angles are degrees here (as in the file);
 code converts at use. Times are seconds since ``RunConfig.epoch_utc`` unless a name says otherwise.
 """
@@ -241,7 +241,7 @@ class EventsConfig:
 
 @dataclass(frozen=True)
 class MetricsConfig:
-    """How a run is judged (sim.metrics).
+    """How a run is judged (sim.judge.metrics).
 
     ``tolerance_m``: half-widths of the tolerance box on the mean-ROE error (truth minus target),
     a-scaled metres, order da, dlambda, dex, dey, dix, diy.

@@ -13,8 +13,8 @@ import numpy as np
 
 from guidance.interface import DeputyTarget, Mission, SpacecraftCaps, ThrusterCaps
 
-from .config import RunConfig, SpacecraftConfig
-from .errors import ScenarioError
+from sim.scenario.config import RunConfig, SpacecraftConfig
+from sim.errors import ScenarioError
 
 
 def spacecraft_caps(sc: SpacecraftConfig, area_by_mode_m2: Mapping[str, float]) -> SpacecraftCaps:
@@ -94,7 +94,7 @@ def check_guidance(cfg: RunConfig) -> str | None:
         return None
     from guidance.registry import load_law
 
-    from .spacecraft import mode_areas_m2
+    from sim.models.geometry import mode_areas_m2
 
     law = load_law(cfg.guidance.law)
     buses = {sc.name: sc.bus for sc in cfg.spacecraft}

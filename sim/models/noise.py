@@ -18,7 +18,7 @@ import zlib
 
 import numpy as np
 
-from .errors import ScenarioError
+from sim.errors import ScenarioError
 
 
 def source_key(*source: str) -> tuple[int, ...]:

@@ -21,7 +21,7 @@ import os
 import zipfile
 from dataclasses import dataclass
 
-from .errors import EnvironmentSetupError
+from sim.errors import EnvironmentSetupError
 
 ENV_VAR = "COVEY_OREKIT_DATA"
 """Environment variable naming the Orekit data folder or zip."""

@@ -8,7 +8,7 @@ arithmetic.
 Element set, shape (..., 6): ``(a_m, ex, ey, i_rad, raan_rad, u_rad)`` with ``ex = e cos w``,
 ``ey = e sin w`` and ``u = w + M`` the mean argument of latitude, all Eckstein-Hechler *mean*
 elements in covey's ECI (TOD, IERS 2010), gravity field J2..J6 of the Orekit data
-(:data:`sim.forces.EH_DEGREE`).
+(:data:`sim.orekit.forces.EH_DEGREE`).
 
 ROE (Koenig, Guffanti et al., "New State Transition Matrices for Spacecraft Relative Motion in
 Perturbed Orbits", JGCD 40(7):1749-1768, 2017, eq. 2), a-scaled by the chief's mean ``a``::
@@ -96,14 +96,14 @@ class _Theory:
     _instance = None
 
     def __init__(self):
-        from sim.orekit_boot import boot
+        from sim.orekit.boot import boot
 
         boot()
         from org.orekit.forces.gravity.potential import GravityFieldFactory
         from org.orekit.frames import FramesFactory
         from org.orekit.utils import IERSConventions
 
-        from sim.forces import EH_DEGREE
+        from sim.orekit.forces import EH_DEGREE
 
         self.provider = GravityFieldFactory.getUnnormalizedProvider(EH_DEGREE, EH_DEGREE)
         self.mu = float(self.provider.getMu())
@@ -139,7 +139,7 @@ def mean_elements(t_s, r_eci_m, v_eci_mps, epoch_utc: str) -> np.ndarray:
     from org.orekit.orbits import OrbitType, PositionAngleType
     from org.orekit.propagation.analytical import EcksteinHechlerPropagator
 
-    from sim.forces import absolute_date
+    from sim.orekit.forces import absolute_date
 
     th = _Theory.get()
     t = np.atleast_1d(np.asarray(t_s, dtype=float))

@@ -6,7 +6,7 @@ record for the log.
 
 Model
 -----
-Two kinds of navigation, each with its own :class:`sim.config.NavErrorConfig`:
+Two kinds of navigation, each with its own :class:`sim.scenario.config.NavErrorConfig`:
 
 - *absolute* (every spacecraft's own state; the chief's goes into the NavSolution): error of the
   estimated position and velocity, expressed in that spacecraft's RTN frame;
@@ -37,7 +37,7 @@ The stated 1-sigma is the root-sum-square of the configured white, bias and Gaus
 each axis at a fresh fix; after the fix it is propagated with the same transition matrix
 (``P(t) = Phi P_fix Phi^T``), so it grows during outages.
 
-Every error source has its own random stream (:func:`sim.seeds.stream`), named
+Every error source has its own random stream (:func:`sim.models.noise.stream`), named
 ``nav/<abs|rel>/<spacecraft>/<pos|vel>/<white|bias|gm>``, and every stream draws exactly three
 numbers per update epoch (white, gm) or once per run (bias) whatever the call pattern: the error at an
 epoch does not depend on when the engine asked for it, and switching a source on or off does not
@@ -58,9 +58,9 @@ from scipy.signal import lfilter
 from guidance.constants import MU_EARTH_M3PS2
 from guidance.interface import AbsoluteEstimate, NavSolution, RelativeEstimate
 
-from .config import ErrorAxesConfig, NavErrorConfig, NavigationConfig
-from .errors import ScenarioError
-from .seeds import stream
+from sim.scenario.config import ErrorAxesConfig, NavErrorConfig, NavigationConfig
+from sim.errors import ScenarioError
+from sim.models.noise import stream
 
 __all__ = [
     "NavigationModel",
@@ -272,7 +272,7 @@ class ErrorProcess:
 
     Parameters
     ----------
-    axes : sim.config.ErrorAxesConfig
+    axes : sim.scenario.config.ErrorAxesConfig
         Sigmas per axis (units of the quantity) and GM time constants (s).
     update_s : float
         Update period, s (the discretisation step of the GM process).
@@ -431,7 +431,7 @@ class NavigationModel:
 
     Parameters
     ----------
-    cfg : sim.config.NavigationConfig
+    cfg : sim.scenario.config.NavigationConfig
     seed : int
         Run seed.
     chief : str

@@ -41,7 +41,7 @@ while a mode is held is the nominal one times
 ``cfg.perfect``: commands are executed as given (no draws) but the hardware limits (per-burn
 maximum, minimum impulse bit, propellant) and the slew time still apply.
 
-Random streams (:func:`sim.seeds.stream`), per spacecraft: ``act/<name>/burn/scale``,
+Random streams (:func:`sim.models.noise.stream`), per spacecraft: ``act/<name>/burn/scale``,
 ``.../burn/fixed``, ``.../burn/pointing``, ``.../burn/time`` (each draws the same count for every
 commanded burn, fired or not), ``act/<name>/area/<mode>``, ``act/<name>/attitude``.
 """
@@ -56,9 +56,9 @@ import numpy as np
 
 from guidance.interface import GuidanceInputError, Impulse, ModeSwitch
 
-from .config import ActuatorConfig, BusConfig, GeometryConfig
-from .errors import ScenarioError
-from .seeds import stream
+from sim.scenario.config import ActuatorConfig, BusConfig, GeometryConfig
+from sim.errors import ScenarioError
+from sim.models.noise import stream
 
 __all__ = [
     "G0_MPS2",
@@ -188,7 +188,7 @@ def mode_rotation(rotation_xyz_deg) -> np.ndarray:
     ----------
     rotation_xyz_deg : (float, float, float)
         Successive rotations of the frame about X, then the new Y, then the new Z, deg
-        (:class:`sim.config.AttitudeModeConfig`; the same as Orekit's ``LofOffset`` with
+        (:class:`sim.scenario.config.AttitudeModeConfig`; the same as Orekit's ``LofOffset`` with
         ``RotationOrder.XYZ``).
 
     Returns
@@ -215,12 +215,12 @@ def rotation_from_vector(rotvec) -> np.ndarray:
 def projected_area_m2(geometry: GeometryConfig, rotation_xyz_deg, error_rotvec_rad=(0.0, 0.0, 0.0)) -> float:
     """Area of a box-and-panels spacecraft projected along its velocity, m^2.
 
-    Same geometry and mode convention as ``sim.spacecraft`` (ram-facing area of a mode), with an
+    Same geometry and mode convention as ``sim.models.geometry`` (ram-facing area of a mode), with an
     optional attitude error on top; a test checks the two agree.
 
     Parameters
     ----------
-    geometry : sim.config.GeometryConfig
+    geometry : sim.scenario.config.GeometryConfig
         ``kind = "box"``: box sides ``box_x_m, box_y_m, box_z_m`` (body axes) and flat ``panels``.
     rotation_xyz_deg : (float, float, float)
         The attitude mode (see :func:`mode_rotation`).
@@ -265,10 +265,10 @@ class ActuatorModel:
 
     Parameters
     ----------
-    cfg : sim.config.ActuatorConfig
+    cfg : sim.scenario.config.ActuatorConfig
     seed : int
         Run seed.
-    buses : Mapping[str, sim.config.BusConfig]
+    buses : Mapping[str, sim.scenario.config.BusConfig]
         Bus of each spacecraft, by spacecraft name.
     mass0_kg : Mapping[str, float]
         Initial wet mass per spacecraft, kg (default: the bus mass).
@@ -338,7 +338,7 @@ class ActuatorModel:
 
     def modes(self, name: str) -> tuple[str, ...]:
         """Attitude modes the spacecraft defines: the bus's ``modes``; for a table geometry without
-        ``modes`` the table's keys; otherwise ``("nominal",)`` (as ``sim.spacecraft.mode_names``)."""
+        ``modes`` the table's keys; otherwise ``("nominal",)`` (as ``sim.models.geometry.mode_names``)."""
         bus = self.buses[self._known(name)]
         if bus.modes:
             return tuple(bus.modes)

@@ -1,7 +1,7 @@
 """Metrics that judge a run, computed from the logged truth only (never from guidance code).
 
 All inputs are plain arrays read from a run log, so the same functions serve a live run, a
-campaign summary and a later re-evaluation of old logs. Mean ROE come from sim.meanroe
+campaign summary and a later re-evaluation of old logs. Mean ROE come from sim.orekit.meanroe
 (Orekit's Eckstein-Hechler mean theory), as logged under ``/spacecraft/<name>/mean_roe_m``.
 """
 
@@ -198,7 +198,7 @@ def run_metrics(f, cfg) -> list[DeputyMetrics]:
     ----------
     f : h5py.File or h5py.Group
         The run log (open for reading or still being written).
-    cfg : sim.config.RunConfig
+    cfg : sim.scenario.config.RunConfig
 
     Returns
     -------

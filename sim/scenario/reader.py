@@ -1,4 +1,4 @@
-"""Scenario files: parse and validate a TOML scenario into a :class:`sim.config.RunConfig`.
+"""Scenario files: parse and validate a TOML scenario into a :class:`sim.scenario.config.RunConfig`.
 
 No JVM is needed here: validation is pure Python (the solar-activity span is read from the CSSI
 text file directly). Every problem raises :class:`sim.errors.ScenarioError` naming the key path
@@ -38,7 +38,7 @@ except ModuleNotFoundError:  # pragma: no cover - Python 3.10
 from guidance.constants import J2, MU_EARTH_M3PS2, R_EARTH_M
 from guidance.interface import MODE_NAMES_REQUIRED
 
-from .config import (
+from sim.scenario.config import (
     ATMOSPHERE_MODELS,
     PRESETS,
     SOLAR_ACTIVITY_SOURCES,
@@ -61,7 +61,7 @@ from .config import (
     SpacecraftConfig,
     ThrusterConfig,
 )
-from .errors import EnvironmentSetupError, ScenarioError
+from sim.errors import EnvironmentSetupError, ScenarioError
 
 __all__ = [
     "load_scenario",
@@ -527,7 +527,7 @@ _ENV_KEYS = ("preset", "gravity_degree", "gravity_order", "atmosphere", "local_s
 def _environment(t: _Table, base_dir: Path) -> EnvironmentConfig:
     preset = t.string("preset", "full", choices=PRESETS)
     dflt = PRESET_DEFAULTS[preset]
-    if preset == "ideal":  # J2 + drag only: the truth (sim.forces.resolve_environment) enforces it
+    if preset == "ideal":  # J2 + drag only: the truth (sim.orekit.forces.resolve_environment) enforces it
         for k in ("gravity_degree", "gravity_order", "sun", "moon", "srp"):
             if t.has(k) and t.d[k] != dflt[k]:
                 raise t.err(k, t.d[k], f"preset \"ideal\" is J2 + drag only ({k} = "
@@ -1094,7 +1094,7 @@ def describe(cfg: RunConfig, orekit_data: str | None = None) -> list[str]:
         + (" (sun-synchronous)" if o.sun_synchronous else ""),
     ]
     try:
-        from .spacecraft import mode_areas_m2
+        from sim.models.geometry import mode_areas_m2
     except ImportError:  # pragma: no cover
         mode_areas_m2 = None
     seen = set()

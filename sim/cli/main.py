@@ -16,10 +16,10 @@ from importlib import resources
 from pathlib import Path
 from typing import Any, Sequence
 
-from . import __version__
+from sim import __version__
 from guidance.interface import GuidanceInputError
 
-from .errors import CoveyError, EnvironmentSetupError
+from sim.errors import CoveyError, EnvironmentSetupError
 
 DEMO_NAME = "demo_formation.toml"
 DEMO_LAWS = ("propulsion_only", "hybrid_single", "hybrid_resolve")
@@ -69,7 +69,7 @@ class _Progress:
 
 def _parse_set(items: Sequence[str] | None) -> dict[str, Any]:
     """``KEY=VALUE`` overrides; VALUE is read as a TOML value, else taken as a plain string."""
-    from .scenario import _toml
+    from sim.scenario.reader import _toml
 
     out: dict[str, Any] = {}
     for item in items or ():
@@ -140,16 +140,16 @@ def _err(msg: str) -> None:
 
 
 def _load(path: str | Path, args: argparse.Namespace):
-    from .scenario import load_scenario
+    from sim.scenario.reader import load_scenario
 
     return load_scenario(path, _parse_set(getattr(args, "set", None)),
                          orekit_data=getattr(args, "orekit_data", None))
 
 
 def _cmd_validate(args: argparse.Namespace) -> int:
-    from .scenario import describe
+    from sim.scenario.reader import describe
 
-    from .mission import check_guidance
+    from sim.loop.mission import check_guidance
 
     cfg = _load(args.scenario, args)
     law = check_guidance(cfg)
@@ -163,7 +163,7 @@ def _cmd_validate(args: argparse.Namespace) -> int:
 
 def _cmd_run(args: argparse.Namespace, scenario: str | Path, demo: bool = False,
              cfg=None, summaries: list | None = None) -> int:
-    from .run import run_scenario
+    from sim.loop.run import run_scenario
 
     cfg = _load(scenario, args) if cfg is None else cfg
     out = Path(args.output) if args.output else DEFAULT_RESULTS / f"{cfg.name}.h5"
@@ -181,7 +181,7 @@ def _cmd_run(args: argparse.Namespace, scenario: str | Path, demo: bool = False,
     if summaries is not None:
         summaries.append(summary)
     if summary.metrics and not demo:
-        from .metrics import METRIC_COLUMNS, format_table, table_rows
+        from sim.judge.metrics import METRIC_COLUMNS, format_table, table_rows
 
         print(format_table(table_rows(summary.metrics), METRIC_COLUMNS))
     if summary.status == "failed":
@@ -200,7 +200,7 @@ def _cmd_demo(args: argparse.Namespace, path: Path) -> int:
     """Fly the demo once per law and print one comparison table."""
     import dataclasses
 
-    from .metrics import format_table, table_rows
+    from sim.judge.metrics import format_table, table_rows
 
     base = _load(path, args)
     laws = tuple(dict.fromkeys(args.law or DEMO_LAWS))
@@ -225,7 +225,7 @@ def _cmd_demo(args: argparse.Namespace, path: Path) -> int:
               "a-scaled metres")
         print(format_table(rows, cols))
         print(f"\nrun logs: {', '.join(str(sm.path) for sm in summaries)}")
-        print("  read one in Python: from sim.recorder import read_log; "
+        print("  read one in Python: from sim.log.recorder import read_log; "
               f"log = read_log({str(summaries[-1].path)!r}); log.spacecraft.beta.mean_roe_m")
     return worst
 
@@ -289,5 +289,5 @@ def console_main() -> None:
             os._exit(int(code) if isinstance(code, int) else 1)
 
 
-if __name__ == "__main__":  # pragma: no cover - ``python -m sim.cli`` behaves as the installed command
+if __name__ == "__main__":  # pragma: no cover - ``python -m sim.cli.main`` behaves as the installed command
     console_main()

@@ -20,7 +20,7 @@ from typing import Mapping
 
 import numpy as np
 
-from sim.config import BusConfig, GeometryConfig
+from sim.scenario.config import BusConfig, GeometryConfig
 from sim.errors import ScenarioError
 
 

@@ -1,0 +1,3 @@
+from sim.cli.main import console_main
+
+console_main()
