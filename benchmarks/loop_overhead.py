@@ -253,6 +253,12 @@ def replay_seconds(cfg, world, log_path: Path) -> float:
 REPLAY_GAP_M: list = []
 
 
+from sim.loop.options import RunOptions  # noqa: E402
+
+OPTIONS = RunOptions()
+"""How the timed closed loop is computed (``--no-thread`` changes it)."""
+
+
 def fresh_world(cfg):
     """A TruthWorld built by the original constructor (not timed, not captured by this script)."""
     from sim.truth.world import TruthWorld
@@ -274,13 +280,13 @@ def closed_loop_seconds(cfg, out: Path, profile: str | None = None):
         pr = cProfile.Profile()
         t0 = time.perf_counter()
         pr.enable()
-        summary = run_scenario(cfg, out)
+        summary = run_scenario(cfg, out, options=OPTIONS)
         pr.disable()
         wall = time.perf_counter() - t0
         pr.dump_stats(profile)
     else:
         t0 = time.perf_counter()
-        summary = run_scenario(cfg, out)
+        summary = run_scenario(cfg, out, options=OPTIONS)
         wall = time.perf_counter() - t0
     if summary.status != "ok":
         raise SystemExit(f"closed loop did not finish: {summary.status} {summary.reason}")
@@ -300,7 +306,7 @@ def main() -> None:
     ap.add_argument("--profile", default=None, help="write a cProfile of the closed loop here")
     ap.add_argument("--keep-log", default=None, help="keep the closed-loop run log at this path")
     ap.add_argument("--no-thread", action="store_true",
-                    help="write the log on the main thread (sim.loop.run.LOG_THREAD = False)")
+                    help="write the log on the main thread (RunOptions(log_thread=False))")
     ap.add_argument("--repeat", type=int, default=1,
                     help="closed-loop runs in all (each followed by a bare run); prints the median ratio")
     ap.add_argument("--no-early-start", action="store_true",
@@ -313,9 +319,8 @@ def main() -> None:
 
         sim.truth.world.TruthWorld.start_early = lambda self, t_s, names: []
     if args.no_thread:
-        import sim.loop.run
-
-        sim.loop.run.LOG_THREAD = False
+        global OPTIONS
+        OPTIONS = OPTIONS.replace(log_thread=False)
 
     from sim.orekit.boot import boot
 
@@ -356,12 +361,10 @@ def main() -> None:
           f"({', '.join(f'{x:.2f}' for x in each_before)}), after {bare_after:.2f} s "
           f"({', '.join(f'{x:.2f}' for x in each_after)}), mean {bare:.2f} s "
           f"= {bare / (n_sc * args.days):.3f} s per spacecraft-day")
-    import sim.loop.run
-
     guid = timers.get("guidance (law.step)", 0.0)
     print(f"closed loop, run_scenario wall time          : {wall:.2f} s "
           f"= {wall / (n_sc * args.days):.3f} s per spacecraft-day "
-          f"(log-writer thread: {'on' if sim.loop.run.LOG_THREAD else 'off'})")
+          f"(log-writer thread: {'on' if OPTIONS.log_thread else 'off'})")
     print(f"RATIO closed loop / bare                     : {wall / bare:.3f}  (target <= 1.2)")
     harness = (wall - guid) / bare  # the loop without the law's own time, x bare
     print(f"  without the guidance law's own time         : {harness:.3f}  "

@@ -23,13 +23,16 @@ def scenario_paths() -> list[Path]:
 
 
 class FakeTruthWorld:
-    """Keplerian stand-in with sim.truth.world.TruthWorld's interface (mean elements taken as
+    """Keplerian stand-in implementing sim.truth.model.TruthModel (mean elements taken as
     osculating). ``fail_at_s`` raises inside advance_to, ``stop_at_s`` reports a stop event."""
 
     fail_at_s: float | None = None
     stop_at_s: float | None = None
+    density_method = "none"
+    java_sampler = False
 
-    def __init__(self, run, boot_info=None):
+    def __init__(self, run, boot_info=None, batched_density=True, java_sampler=False, threads=None):
+        self.threads = 1
         from guidance.roe import roe_to_oe
 
         self.run = run
@@ -116,6 +119,12 @@ class FakeTruthWorld:
         ev, self._events = self._events, []
         return ev
 
+    def start_early(self, t_s, names):
+        return []
+
+    def cancel_early(self):
+        pass
+
 
 @pytest.fixture
 def fake_truth(monkeypatch):
@@ -134,5 +143,5 @@ def fake_truth(monkeypatch):
         boot=lambda data_path=None: boot_info, TruthWorld=World,
         mean_elements=lambda t, r, v, epoch: rv_to_oe(r, v),
         mean_roe_m=lambda c, d: oe_to_roe(c, d) * np.asarray(c)[..., :1])
-    monkeypatch.setattr(sim.loop.run, "_truth_api", lambda: api)
+    monkeypatch.setattr(sim.loop.run, "truth_backend", lambda: api)
     return World

@@ -16,9 +16,8 @@ from __future__ import annotations
 
 import datetime as _dt
 import os
-import re
 from pathlib import Path
-from typing import Any, Iterator, Mapping
+from typing import Any, Mapping
 
 import h5py
 import numpy as np

@@ -1,6 +1,7 @@
 """The closed loop: truth -> navigation -> guidance law -> actuators -> truth, cycle by cycle.
 
-:class:`ClosedLoopEngine` extends the free-drift :class:`sim.loop.run.Engine` with the guidance cycle.
+:class:`Engine` is the free-drift cycle loop (advance the truth cycle by cycle, record what it
+produced); :class:`ClosedLoopEngine` extends it with the guidance cycle.
 At each cycle time ``t`` it
 
 1. reads the truth states and makes navigation estimates (:mod:`sim.models.navigation`);
@@ -21,115 +22,211 @@ ROE), guidance-believed density at each spacecraft.
 from __future__ import annotations
 
 import dataclasses
-import math
 import time
+from concurrent.futures import ThreadPoolExecutor
 from types import SimpleNamespace
-from typing import Any, Mapping
+from typing import Any, Callable
 
 import numpy as np
 
-from guidance.interface import (
-    Diagnostics,
-    GuidanceInputError,
-    GuidanceOutput,
-    Impulse,
-    ModeSwitch,
-    SpacecraftCommand,
-)
+from guidance.interface import ROE_NAMES, GuidanceInputError, GuidanceOutput, SpacecraftCommand
 
 from sim.models.actuators import ActuatorModel
 from sim.scenario.config import RunConfig
-from sim.errors import CoveyError
 from sim.loop.mission import build_mission
 from sim.models.navigation import NavigationModel
 from sim.log.recorder import RunRecorder
-from sim.loop.run import Engine, ProgressFn
+from sim.errors import PropagationError
+from sim.log.buffer import BufferedLog
+from sim.loop.checks import EPS_T as _EPS_T, GuidanceFailure, check_output
+from sim.loop.options import RunOptions
 
-_EPS_T = 1e-6
+
+__all__ = ["Engine", "ClosedLoopEngine", "GuidanceFailure", "check_output", "MEAN_OE_NAMES",
+           "ProgressFn"]
+
+MEAN_OE_NAMES = ("a_m", "ex", "ey", "i_deg", "raan_deg", "u_deg")
+"""Datasets of ``/spacecraft/<name>/mean_oe`` (Eckstein-Hechler mean elements, TOD)."""
+
+ProgressFn = Callable[[float, float], None]
 
 
-class GuidanceFailure(CoveyError):
-    """The guidance law raised, or answered with something the harness cannot fly.
+class Engine:
+    """The cycle loop of one run.
 
-    Attributes
+    Parameters
     ----------
-    law : str
-        The law's name or import path.
-    t_s : float
-        Cycle time, s since epoch.
-    detail : str
-        What was wrong.
+    cfg : RunConfig
+    rec : RunRecorder
+    world : TruthWorld
+        The truth (``sim.truth.world.TruthWorld`` or anything with its interface).
+    api : namespace
+        ``mean_elements`` and ``mean_roe_m`` (``sim.orekit.meanroe``).
+    progress : callable, optional
+        ``progress(t_s, duration_s)`` once at the start and after every cycle.
+    options : RunOptions, optional
+        Log-writer thread and write intervals (:class:`sim.loop.options.RunOptions`).
     """
 
-    exit_code = 1
+    def __init__(self, cfg: RunConfig, rec: RunRecorder, world: Any, api: SimpleNamespace,
+                 progress: ProgressFn | None = None, options: RunOptions | None = None):
+        self.cfg, self.world, self.api = cfg, world, api
+        self.options = options if options is not None else RunOptions()
+        self.rec = rec if isinstance(rec, BufferedLog) else BufferedLog(rec)
+        self._log_written_t_s = 0.0
+        self._log_written_wall = time.perf_counter()
+        # HDF5 compression and writing of the buffered rows on a thread of its own
+        self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="covey-log") \
+            if self.options.log_thread else None
+        self.progress = progress
+        self.names: tuple[str, ...] = tuple(world.names)
+        self.chief = self.names[0]
+        self.t_s = 0.0
+        self.n_samples = 0
+        self.final_roe: dict[str, np.ndarray] = {}
+        self.dv_total: dict[str, float] = {n: 0.0 for n in self.names}
+        self._declare()
 
-    def __init__(self, law: str, t_s: float, detail: str):
-        self.law, self.t_s, self.detail = law, t_s, detail
-        super().__init__(f"guidance law {law!r} at t = {t_s:.1f} s: {detail}")
+    # -- set-up ------------------------------------------------------------------------------
+    def _declare(self) -> None:
+        """Spacecraft attributes and empty tables, so every log has the same layout."""
+        rec = self.rec
+        sc_cfg = {sc.name: sc for sc in self.cfg.spacecraft}
+        rec.write_attrs("spacecraft", names=list(self.names), chief=self.chief,
+                        truth_density_method=str(getattr(self.world, "density_method", "unknown")),
+                        truth_sampler=("orekit_oem_writer" if getattr(self.world, "java_sampler", False)
+                                       else "python_step_handler"),
+                        truth_threads=int(getattr(self.world, "threads", 1)))
+        for name in self.names:
+            sc = sc_cfg.get(name)
+            modes = list(self.world.mode_names(name))
+            areas = self.world.mode_area_m2(name)
+            rec.write_attrs(f"spacecraft/{name}", role="chief" if name == self.chief else "deputy",
+                            bus=sc.bus.name if sc else "", initial_mode=sc.initial_mode if sc else "",
+                            mode_names=modes,
+                            mode_area_m2=np.array([float(areas.get(m, np.nan)) for m in modes]))
+        rec.append("maneuvers", t_s=np.zeros(0), name=np.array([], dtype=str),
+                   dv_rtn_mps=np.zeros((0, 3)), dv_eci_mps=np.zeros((0, 3)),
+                   mass_before_kg=np.zeros(0), mass_after_kg=np.zeros(0))
+        rec.append("events", t_s=np.zeros(0), name=np.array([], dtype=str),
+                   kind=np.array([], dtype=str), detail=np.array([], dtype=str))
 
+    # -- the loop ----------------------------------------------------------------------------
+    def plan(self, t_s: float, t_next_s: float) -> None:
+        """Load mode schedules and impulses for the interval [t_s, t_next_s).
 
-def _finite(x) -> bool:
-    try:
-        return bool(np.all(np.isfinite(np.asarray(x, dtype=float))))
-    except (TypeError, ValueError):
-        return False
+        Free drift: nothing. The closed loop (navigation -> guidance -> actuators) goes here:
+        read ``self.world.states()``, build estimates, call the law, then
+        ``self.world.set_mode_schedule(...)`` / ``set_impulses(...)``, and log with
+        ``self.rec.append("guidance/...", t_s=..., ...)``.
+        """
 
+    def finish(self) -> None:
+        """Called once after the loop ended normally (ok or stopped), before the log is closed:
+        summary datasets of later engines go here. Free drift: nothing."""
 
-def _time(x) -> bool:
-    """A finite real number (a time in s); strings and booleans are not."""
-    return isinstance(x, (int, float, np.integer, np.floating)) and not isinstance(x, bool) \
-        and math.isfinite(float(x))
+    def run(self) -> tuple[str, str]:
+        """Fly to the end (or to a stop event). Returns (status, reason)."""
+        T = self.cfg.duration_s
+        cycle = self.cfg.guidance.cycle_s
+        k = 0
+        if self.progress is not None:
+            self.progress(self.t_s, T)
+        while self.t_s < T - 1e-9:
+            t_next = min((k + 1) * cycle, T)
+            self.plan(self.t_s, t_next)
+            res = self.world.advance_to(t_next)
+            self.record_interval()
+            if not res.stopped and res.t_s < t_next - 1e-6:
+                raise PropagationError(res.t_s, ",".join(self.names),
+                                       f"truth stopped short of t = {t_next:.1f} s without a reason")
+            self.t_s = float(res.t_s)
+            k += 1
+            if self.progress is not None:
+                self.progress(self.t_s, T)
+            if res.stopped:
+                return "stopped", str(res.reason or "stopped by an event")
+        return "ok", ""
 
+    # -- recording ---------------------------------------------------------------------------
+    def record_interval(self) -> None:
+        """Drain the truth world's buffers into the log: samples (+ mean elements and mean ROE),
+        executed impulses, events."""
+        samples = self.world.drain_samples()
+        chief_mean = None
+        chief_t = None
+        for name in self.names:
+            s = samples.get(name)
+            if not s or len(s["t_s"]) == 0:
+                continue
+            modes = list(self.world.mode_names(name))
+            self.rec.append(f"spacecraft/{name}/truth",
+                            attrs={"mode_index": {"mode_names": modes}}, **s)
+            t = np.asarray(s["t_s"], dtype=float)
+            mean = np.asarray(self.api.mean_elements(t, s["r_eci_m"], s["v_eci_mps"],
+                                                     self.cfg.epoch_utc), dtype=float)
+            oe = {"a_m": mean[:, 0], "ex": mean[:, 1], "ey": mean[:, 2],
+                  "i_deg": np.degrees(mean[:, 3]), "raan_deg": np.degrees(mean[:, 4]) % 360.0,
+                  "u_deg": np.degrees(mean[:, 5]) % 360.0}
+            self.rec.append(f"spacecraft/{name}/mean_oe", units={"ex": "1", "ey": "1"}, **oe)
+            if name == self.chief:
+                chief_mean, chief_t = mean, t
+                self.n_samples += len(t)
+                continue
+            roe = np.full((len(t), 6), np.nan)
+            if chief_mean is not None:
+                idx = np.searchsorted(chief_t, t)
+                idx = np.clip(idx, 0, len(chief_t) - 1)
+                ok = np.abs(chief_t[idx] - t) < 1e-6
+                if ok.any():
+                    roe[ok] = self.api.mean_roe_m(chief_mean[idx[ok]], mean[ok])
+            self.rec.append(f"spacecraft/{name}", units={"mean_roe_m": "m"},
+                            attrs={"mean_roe_m": {"columns": list(ROE_NAMES),
+                                                  "reference": self.chief}},
+                            mean_roe_m=roe)
+            self.final_roe[name] = roe[-1]
 
-def check_output(out: Any, t_s: float, known_modes: Mapping[str, tuple[str, ...]], law: str
-                 ) -> dict[str, SpacecraftCommand]:
-    """Validate a law's answer; returns its commands by spacecraft name.
+        imps = self.world.drain_executed_impulses()
+        if imps:
+            cols = {k: [] for k in imps[0]}
+            for imp in imps:
+                for k in cols:
+                    cols[k].append(imp.get(k))
+                self.dv_total[imp["name"]] = self.dv_total.get(imp["name"], 0.0) + float(
+                    np.linalg.norm(imp["dv_rtn_mps"]))
+            self.rec.append("maneuvers", **{k: np.asarray(v) for k, v in cols.items()})
+        events = self.world.drain_events()
+        if events:
+            self.rec.append("events", t_s=[float(e["t_s"]) for e in events],
+                            name=[str(e.get("name", "")) for e in events],
+                            kind=[str(e.get("kind", "")) for e in events],
+                            detail=[str(e.get("detail", "")) for e in events])
+        now = time.perf_counter()
+        if (self.t_s - self._log_written_t_s >= self.options.log_write_sim_s - 1e-6
+                or now - self._log_written_wall >= self.options.log_write_wall_s):
+            if self._pool is None:
+                self.rec.flush()
+            else:  # compressed and written on the writer thread
+                self.rec.write_async(self._pool)
+            self._log_written_t_s = self.t_s
+            self._log_written_wall = now
 
-    Raises
-    ------
-    GuidanceFailure
-        Wrong type, unknown spacecraft or mode, non-finite numbers, times before ``t_s``.
-    """
-    if not isinstance(out, GuidanceOutput):
-        raise GuidanceFailure(law, t_s, f"step() returned {type(out).__name__}, expected GuidanceOutput")
-    cmds = out.commands
-    if not isinstance(cmds, Mapping):
-        raise GuidanceFailure(law, t_s, "GuidanceOutput.commands must map spacecraft names to SpacecraftCommand")
-    result = {}
-    for name, c in cmds.items():
-        if name not in known_modes:
-            raise GuidanceFailure(law, t_s, f"command for unknown spacecraft {name!r}; known: {sorted(known_modes)}")
-        if not isinstance(c, SpacecraftCommand):
-            raise GuidanceFailure(law, t_s, f"commands[{name!r}] is {type(c).__name__}, expected SpacecraftCommand")
-        for field in ("mode_switches", "impulses"):
-            if not isinstance(getattr(c, field), (tuple, list)):
-                raise GuidanceFailure(law, t_s, f"commands[{name!r}].{field} is "
-                                      f"{type(getattr(c, field)).__name__}, expected a tuple")
-        for k, sw in enumerate(c.mode_switches):
-            if not isinstance(sw, ModeSwitch) or not _time(sw.t_s):
-                raise GuidanceFailure(law, t_s, f"commands[{name!r}].mode_switches[{k}] = {sw!r}: a ModeSwitch with finite t_s")
-            if sw.mode not in known_modes[name]:
-                raise GuidanceFailure(law, t_s, f"commands[{name!r}].mode_switches[{k}].mode = {sw.mode!r}: one of {list(known_modes[name])}")
-            if sw.t_s < t_s - _EPS_T:
-                raise GuidanceFailure(law, t_s, f"commands[{name!r}].mode_switches[{k}].t_s = {sw.t_s:.3f} s is before the cycle time")
-        for k, imp in enumerate(c.impulses):
-            if not isinstance(imp, Impulse) or not _time(imp.t_s):
-                raise GuidanceFailure(law, t_s, f"commands[{name!r}].impulses[{k}] = {imp!r}: an Impulse with finite t_s")
-            dv = np.asarray(imp.dv_rtn_mps, dtype=float) if _finite(imp.dv_rtn_mps) else None
-            if dv is None or dv.shape != (3,):
-                raise GuidanceFailure(law, t_s, f"commands[{name!r}].impulses[{k}].dv_rtn_mps = {imp.dv_rtn_mps!r}: 3 finite numbers in m/s")
-            if imp.t_s < t_s - _EPS_T:
-                raise GuidanceFailure(law, t_s, f"commands[{name!r}].impulses[{k}].t_s = {imp.t_s:.3f} s is before the cycle time")
-        result[name] = c
-    d = out.diagnostics
-    if not isinstance(d, Diagnostics):
-        raise GuidanceFailure(law, t_s, f"GuidanceOutput.diagnostics is {type(d).__name__}, expected Diagnostics")
-    if not _time(d.solve_time_s):
-        raise GuidanceFailure(law, t_s, f"diagnostics.solve_time_s = {d.solve_time_s!r}: a finite number in s")
-    for k, v in dict(getattr(d, "dv_remaining_mps", {}) or {}).items():
-        if not _finite(v):
-            raise GuidanceFailure(law, t_s, f"diagnostics.dv_remaining_mps[{k!r}] = {v!r}: a finite number in m/s")
-    return result
+    def flush_log(self) -> None:
+        """Write the buffered log rows to the file and flush it (also done at least every
+        ``options.log_write_sim_s`` simulated or ``options.log_write_wall_s`` wall-clock seconds)."""
+        self.rec.flush()
+        self._log_written_t_s = self.t_s
+        self._log_written_wall = time.perf_counter()
+
+    def close(self) -> None:
+        """Stop the log-writer thread (after its queued work; idempotent)."""
+        if self._pool is not None:
+            self._pool.shutdown(wait=True)
+            self._pool = None
+            try:
+                self.rec.wait()
+            except Exception:  # noqa: BLE001 - raised already by flush_log, or the run failed
+                pass
 
 
 class ClosedLoopEngine(Engine):
@@ -138,14 +235,14 @@ class ClosedLoopEngine(Engine):
     Parameters
     ----------
     cfg, rec, world, api, progress
-        As :class:`sim.loop.run.Engine`.
+        As :class:`Engine`.
     law : GuidanceLaw
         A constructed law (not yet set up).
     """
 
     def __init__(self, cfg: RunConfig, rec: RunRecorder, world: Any, api: SimpleNamespace,
-                 progress: ProgressFn | None, law: Any):
-        super().__init__(cfg, rec, world, api, progress)
+                 progress: ProgressFn | None, law: Any, options: RunOptions | None = None):
+        super().__init__(cfg, rec, world, api, progress, options)
         self.law = law
         self.law_name = cfg.guidance.law
         self.deputy_names = self.names[1:]

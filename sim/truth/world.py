@@ -14,7 +14,7 @@ What happens in one :meth:`TruthWorld.advance_to` call, per spacecraft:
 3. ONE ``propagate()`` to the target time, with the integrator's initial step set, an altitude
    detector, and a sampler of the fixed grid ``k * log_step_s``: by default Orekit's CCSDS OEM
    streaming writer as a Java fixed-step handler writing into a Java ``StringBuilder``, parsed in
-   numpy after the call (no Python per sample; :data:`JAVA_SAMPLER`); for a segment that does
+   numpy after the call (no Python per sample; ``java_sampler``); for a segment that does
    not start on the grid, or with the per-sample density below, a Python step handler (called
    once per integrator step, never inside a force evaluation).
 
@@ -69,17 +69,6 @@ G0_MPS2 = 9.80665
 TOD_GRID_S = 1800.0
 """Grid step of the exact GCRF -> TOD transforms interpolated for the samples, s (also the grid of the
 exact TOD -> ITRF transforms used by the batched density)."""
-
-BATCHED_DENSITY = True
-"""Default of ``TruthWorld(batched_density=None)``: compute the logged NRLMSISE-00 density in batch
-with pymsis when the model allows it (see the module docstring); False forces Orekit's
-``getDensity`` per sample."""
-
-JAVA_SAMPLER = True
-"""Default of ``TruthWorld(java_sampler=None)``: sample the truth with Orekit's own CCSDS OEM
-streaming writer as a fixed-step handler (the samples never cross into Python one by one: the
-text of each segment is parsed in numpy afterwards) whenever the segment starts on the sampling
-grid and the density is not evaluated per sample; False keeps the Python step handler."""
 
 TRUTH_THREADS_ENV = "COVEY_TRUTH_THREADS"
 """Environment variable that sets the default of ``TruthWorld(threads=None)``: how many spacecraft
@@ -569,13 +558,13 @@ class TruthWorld:
     run : RunConfig
     boot_info : BootInfo or None
         From :func:`sim.orekit.boot.boot`; booted here (with ``run.orekit_data``) when None.
-    batched_density : bool or None
+    batched_density : bool
         Logged density of NRLMSISE-00 (mean local solar time) computed in batch with pymsis at
-        :meth:`drain_samples` (True) or by Orekit's ``getDensity`` per sample (False); None takes
-        :data:`BATCHED_DENSITY`. Other models always use Orekit per sample.
-    java_sampler : bool or None
-        Sample with Orekit's OEM streaming writer (True) or the Python step handler (False); None
-        takes :data:`JAVA_SAMPLER`.
+        :meth:`drain_samples` (True) or by Orekit's ``getDensity`` per sample (False). Other
+        models always use Orekit per sample (``RunOptions.batched_density``).
+    java_sampler : bool
+        Sample with Orekit's OEM streaming writer (True) or the Python step handler (False)
+        (``RunOptions.java_sampler``).
     threads : int or None
         Spacecraft propagated at the same time in :meth:`advance_to` (each spacecraft's
         ``propagate()`` runs in Java on its own thread; the results do not depend on it: every
@@ -598,10 +587,10 @@ class TruthWorld:
         Spacecraft propagated at the same time.
     """
 
-    def __init__(self, run: RunConfig, boot_info: BootInfo | None = None, batched_density: bool | None = None,
-                 java_sampler: bool | None = None, threads: int | None = None):
+    def __init__(self, run: RunConfig, boot_info: BootInfo | None = None, batched_density: bool = True,
+                 java_sampler: bool = True, threads: int | None = None):
         self.run = run
-        self.java_sampler = JAVA_SAMPLER if java_sampler is None else bool(java_sampler)
+        self.java_sampler = bool(java_sampler)
         n_thr = default_threads() if threads is None else threads
         if isinstance(n_thr, bool) or not isinstance(n_thr, (int, np.integer)) or n_thr < 1:
             raise ScenarioError("threads", threads, "a positive integer (1: one spacecraft after the other)")
@@ -616,8 +605,7 @@ class TruthWorld:
         self._events: list[dict] = []
         self._tod_cache: dict[int, tuple[np.ndarray, np.ndarray]] = {}
         self._msis: _MsisBatch | None = None
-        self.density_method = self._choose_density_method(BATCHED_DENSITY if batched_density is None
-                                                          else bool(batched_density))
+        self.density_method = self._choose_density_method(bool(batched_density))
         self._init_density_error()
         names = [sc.name for sc in run.spacecraft]
         if len(set(names)) != len(names):

@@ -10,7 +10,6 @@ practice, no source).
 from __future__ import annotations
 
 import io
-import sys
 
 import numpy as np
 import pytest

@@ -37,6 +37,7 @@ import pytest
 
 from guidance.interface import Diagnostics, GuidanceOutput, Impulse, ModeSwitch, SpacecraftCommand
 from sim.judge.metrics import rtn_relative
+from sim.log.diff import WALL_CLOCK_ATTRS, diff_logs, log_items
 from sim.log.recorder import read_log
 from sim.loop.run import run_scenario
 from sim.scenario.reader import load_scenario
@@ -352,7 +353,7 @@ def long_run(tmp_path_factory):
             **{f"actuators.{k}": v for k, v in ACT.items()}}
     cfg = _demo(REPO, **over)
     with pytest.MonkeyPatch.context() as mp:
-        mp.setattr(sim.loop.run, "_truth_api", lambda: api)
+        mp.setattr(sim.loop.run, "truth_backend", lambda: api)
         s = run_scenario(cfg, tmp_path_factory.mktemp("long") / "long.h5")
     assert s.status == "ok", s.reason
     return cfg, s, read_log(s.path)
@@ -644,48 +645,7 @@ JVM_SET = ["run.duration_days=0.15", "deputies[0].deadline_days=0.15", "deputies
            "deputies[0].target_roe_m=[0.0, 2100.0, 0.0, 110.0, 0.0, 110.0]",
            "deputies[1].target_roe_m=[0.0, -1600.0, 0.0, -110.0, 0.0, -110.0]", "run.seed=20250601"]
 
-# Fields that measure time, not the simulation: wall-clock stamps and durations, and the source
-# tree's git state (other work may commit between two runs). Everything else must be identical.
-WALL_CLOCK_ATTRS = {("/", "created_utc"), ("meta", "started_utc"), ("meta", "finished_utc"),
-                    ("meta", "wall_time_s"), ("meta", "git_commit")}
-WALL_CLOCK_DATASETS = {"guidance/cycles/solve_time_s", "guidance/cycles/step_wall_s"}
-
-
-def _h5_items(path):
-    """Every attribute and dataset of an HDF5 file: {key: value}."""
-    out = {}
-    with h5py.File(path, "r") as f:
-        for k, v in f.attrs.items():
-            out[("attr", "/", k)] = v
-
-        def visit(name, obj):
-            for k, v in obj.attrs.items():
-                out[("attr", name, k)] = v
-            if isinstance(obj, h5py.Dataset):
-                out[("data", name)] = (obj.dtype.str, obj.shape, obj[()])
-            else:
-                out[("group", name)] = None
-
-        f.visititems(visit)
-    return out
-
-
-def _equal(a, b):
-    if isinstance(a, tuple):
-        return a[:2] == b[:2] and _equal(a[2], b[2])
-    a, b = np.asarray(a), np.asarray(b)
-    if a.shape != b.shape or a.dtype.kind != b.dtype.kind:
-        return False
-    if a.dtype.kind in "fc":
-        return bool(np.array_equal(a, b, equal_nan=True))
-    return bool(np.array_equal(a, b))
-
-
-def _diff_logs(p1, p2):
-    a, b = _h5_items(p1), _h5_items(p2)
-    keys = set(a) | set(b)
-    skip = {("attr",) + x for x in WALL_CLOCK_ATTRS} | {("data", x) for x in WALL_CLOCK_DATASETS}
-    return sorted((str(k) for k in keys - skip if k not in a or k not in b or not _equal(a[k], b[k])))
+# Fields that measure time, not the simulation: sim.log.diff.WALL_CLOCK_ATTRS / _DATASETS.
 
 
 @pytest.fixture(scope="module")
@@ -720,8 +680,8 @@ def jvm_runs(tmp_path_factory):
 @pytest.mark.orekit
 def test_same_scenario_and_seed_give_identical_logs(jvm_runs):
     cfg, p, _ = jvm_runs
-    assert _diff_logs(p["A"], p["B"]) == []
-    a, b = _h5_items(p["A"]), _h5_items(p["B"])
+    assert diff_logs(p["A"], p["B"]) == []
+    a = log_items(p["A"])
     # the excluded fields are there and do measure time (so the exclusion list is not stale)
     for g, k in WALL_CLOCK_ATTRS:
         assert ("attr", g, k) in a

@@ -1,9 +1,9 @@
 """The engine's speed devices write the same log as the plain engine.
 
-- The buffered log (sim.loop.run.BufferedLog) against direct appends: the reference is the recorder
+- The buffered log (sim.log.buffer.BufferedLog) against direct appends: the reference is the recorder
   itself (sim.log.recorder.RunRecorder.append called once per engine append, as the engine did before
   the buffer existed).
-- The log-writer thread (sim.loop.run.LOG_THREAD: the buffered rows compressed and written on a thread
+- The log-writer thread (RunOptions.log_thread: the buffered rows compressed and written on a thread
   of their own) against writing them on the main thread.
 
 Flown with the Keplerian stand-in truth (tests/conftest.py ``fake_truth``) and the real
@@ -20,7 +20,8 @@ import numpy as np
 import pytest
 
 import sim.loop.run
-from sim.loop.run import BufferedLog
+from sim.log.buffer import BufferedLog
+from sim.loop.options import RunOptions, frozen_heap
 from sim.scenario.reader import load_scenario
 
 # wall-clock and provenance fields, different in any two runs
@@ -70,7 +71,7 @@ def _assert_same_logs(a, b, rtol=None):
             np.testing.assert_allclose(da[2], db[2], rtol=tol, atol=0, err_msg=name)
         assert sorted(da[3]) == sorted(db[3]), name
         for k in da[3]:
-            if name == "meta" and k == "traceback":
+            if name == "meta" and k in ("traceback", "run_options_json"):  # options differ on purpose
                 continue
             assert _same(da[3][k], db[3][k]), (name, k)
 
@@ -90,10 +91,10 @@ def test_buffered_log_equals_direct_appends(tmp_path, repo_root, fake_truth, mon
     if fail:  # a failed run keeps the same rows either way
         fake_truth.fail_at_s = 3.2 * 5400.0
     # write the buffer more than once per run
-    monkeypatch.setattr(sim.loop.run, "LOG_WRITE_SIM_S", 2 * 5400.0)
-    s1 = sim.loop.run.run_scenario(cfg, tmp_path / "buffered.h5")
+    opts = RunOptions(log_write_sim_s=2 * 5400.0)
+    s1 = sim.loop.run.run_scenario(cfg, tmp_path / "buffered.h5", options=opts)
     monkeypatch.setattr(sim.loop.run, "BufferedLog", DirectLog)
-    s2 = sim.loop.run.run_scenario(cfg, tmp_path / "direct.h5")
+    s2 = sim.loop.run.run_scenario(cfg, tmp_path / "direct.h5", options=opts)
     assert s1.status == s2.status == ("failed" if fail else "ok")
     a, b = _contents(s1.path), _contents(s2.path)
     assert "guidance/predicted/beta/roe_m" in a and "navigation/relative/gamma/err_dr_rtn_m" in a
@@ -105,11 +106,9 @@ def test_log_thread_same_log(tmp_path, repo_root, fake_truth, monkeypatch, fail)
     cfg = _demo_cfg(repo_root)
     if fail:
         fake_truth.fail_at_s = 3.2 * 5400.0
-    monkeypatch.setattr(sim.loop.run, "LOG_WRITE_SIM_S", 2 * 5400.0)  # several writes per run
-    monkeypatch.setattr(sim.loop.run, "LOG_THREAD", True)
-    s1 = sim.loop.run.run_scenario(cfg, tmp_path / "thread.h5")
-    monkeypatch.setattr(sim.loop.run, "LOG_THREAD", False)
-    s2 = sim.loop.run.run_scenario(cfg, tmp_path / "inline.h5")
+    opts = RunOptions(log_write_sim_s=2 * 5400.0)  # several writes per run
+    s1 = sim.loop.run.run_scenario(cfg, tmp_path / "thread.h5", options=opts.replace(log_thread=True))
+    s2 = sim.loop.run.run_scenario(cfg, tmp_path / "inline.h5", options=opts.replace(log_thread=False))
     assert s1.status == s2.status == ("failed" if fail else "ok")
     assert s1.n_samples == s2.n_samples > 0
     _assert_same_logs(_contents(s1.path), _contents(s2.path))
@@ -134,13 +133,13 @@ def test_buffer_checks_rows_at_the_call(tmp_path):
 def test_frozen_heap_freezes_for_the_block_and_restores_the_collector():
     # gc.freeze / gc.unfreeze (Python docs, module gc); the closed loop runs inside this block
     assert gc.get_freeze_count() == 0
-    with sim.loop.run.frozen_heap():
+    with frozen_heap():
         assert gc.get_freeze_count() > 0
     assert gc.get_freeze_count() == 0
     gc.freeze()  # a caller that froze objects itself keeps them frozen
     try:
         n = gc.get_freeze_count()
-        with sim.loop.run.frozen_heap():
+        with frozen_heap():
             pass
         assert gc.get_freeze_count() >= n > 0
     finally:
