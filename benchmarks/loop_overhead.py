@@ -220,7 +220,7 @@ def replay_seconds(cfg, world, log_path: Path) -> float:
     from org.orekit.frames import LOFType
     from org.orekit.propagation.events import DateDetector
 
-    from sim.log.recorder import read_log
+    from sim.log.reader import read_log
 
     log = read_log(log_path)
     names = [x.decode() if isinstance(x, bytes) else str(x) for x in log.get("maneuvers/name")]

@@ -225,7 +225,7 @@ def _cmd_demo(args: argparse.Namespace, path: Path) -> int:
               "a-scaled metres")
         print(format_table(rows, cols))
         print(f"\nrun logs: {', '.join(str(sm.path) for sm in summaries)}")
-        print("  read one in Python: from sim.log.recorder import read_log; "
+        print("  read one in Python: from sim.log.reader import read_log; "
               f"log = read_log({str(summaries[-1].path)!r}); log.spacecraft.beta.mean_roe_m")
     return worst
 

@@ -12,6 +12,8 @@ from typing import Mapping, Sequence
 
 import numpy as np
 
+from sim.models.frames import relative_rtn
+
 ROE_KEYS = ("a_da_m", "a_dlambda_m", "a_dex_m", "a_dey_m", "a_dix_m", "a_diy_m")
 
 
@@ -83,16 +85,6 @@ def closest_approach(t_s, r_eci_m, others: Mapping[str, np.ndarray]) -> tuple[fl
     return best
 
 
-def rtn_relative(r_c, v_c, r_d):
-    """Deputy-minus-chief position in the chief RTN frame, shape (K, 3)."""
-    R = r_c / np.linalg.norm(r_c, axis=-1, keepdims=True)
-    h = np.cross(r_c, v_c)
-    N = h / np.linalg.norm(h, axis=-1, keepdims=True)
-    T = np.cross(N, R)
-    d = r_d - r_c
-    return np.stack([np.sum(d * R, -1), np.sum(d * T, -1), np.sum(d * N, -1)], axis=-1)
-
-
 def time_in_modes(t_s: np.ndarray, mode_index: np.ndarray, mode_names: Sequence[str]) -> dict:
     """Seconds spent in each mode, from sampled mode indices (sample-and-hold)."""
     out = {m: 0.0 for m in mode_names}
@@ -150,7 +142,7 @@ def deputy_metrics(
     else:
         max_after = float("nan")
     dv = np.asarray(dv_exec_rtn_mps, float).reshape(-1, 3)
-    rel = rtn_relative(np.asarray(r_chief_eci_m), np.asarray(v_chief_eci_mps), np.asarray(r_deputy_eci_m))
+    rel = relative_rtn(np.asarray(r_chief_eci_m), np.asarray(v_chief_eci_mps), np.asarray(r_deputy_eci_m))
     rn = np.hypot(rel[:, 0], rel[:, 2]) if rel.size else np.zeros(0)
     return DeputyMetrics(
         name=name,

@@ -53,20 +53,19 @@ from dataclasses import dataclass
 from typing import Mapping, Sequence
 
 import numpy as np
-from scipy.signal import lfilter
 
 from guidance.constants import MU_EARTH_M3PS2
 from guidance.interface import AbsoluteEstimate, NavSolution, RelativeEstimate
 
 from sim.scenario.config import ErrorAxesConfig, NavErrorConfig, NavigationConfig
 from sim.errors import ScenarioError
-from sim.models.noise import stream
+from sim.models.frames import rtn_rows
+from sim.models.noise import gauss_markov, stream
 
 __all__ = [
     "NavigationModel",
     "ErrorProcess",
     "sample_error_process",
-    "rtn_matrix",
     "kepler_propagate",
     "kepler_stm",
     "REALISTIC_NAVIGATION",
@@ -117,28 +116,6 @@ REALISTIC_NAVIGATION = NavigationConfig(perfect=False, absolute=REALISTIC_ABSOLU
 # ------------------------------------------------------------------------------------------
 # Frames and two-body propagation (numpy)
 # ------------------------------------------------------------------------------------------
-
-
-def rtn_matrix(r_eci_m, v_eci_mps) -> np.ndarray:
-    """Rotation from ECI to the RTN frame of a state.
-
-    Parameters
-    ----------
-    r_eci_m, v_eci_mps : array_like, shape (3,)
-        Position (m) and velocity (m/s) in ECI.
-
-    Returns
-    -------
-    np.ndarray, shape (3, 3)
-        Rows are the R, T, N unit vectors in ECI: ``x_rtn = M @ x_eci``. R along the position,
-        N along the angular momentum, T = N x R.
-    """
-    r = np.asarray(r_eci_m, dtype=float)
-    h = np.cross(r, np.asarray(v_eci_mps, dtype=float))
-    ur = r / np.linalg.norm(r)
-    un = h / np.linalg.norm(h)
-    ut = np.cross(un, ur)
-    return np.vstack((ur, ut, un))
 
 
 def _stumpff(z):
@@ -333,15 +310,7 @@ class ErrorProcess:
                 else:
                     x = self._gm
                 if len(w) > 0:
-                    if len(w) <= 8:
-                        for row in w:
-                            x = self.gm_phi * x + self.gm_q * row
-                    else:
-                        x = np.array([
-                            lfilter([self.gm_q[j]], [1.0, -self.gm_phi[j]], w[:, j],
-                                    zi=[self.gm_phi[j] * x[j]])[0][-1]
-                            for j in range(3)
-                        ])
+                    x = gauss_markov(x, w, self.gm_phi, self.gm_q)[-1]
                 self._gm = x
             self._k += n
             m -= n
@@ -523,7 +492,7 @@ class NavigationModel:
             Error and stated 1-sigma at t in the axes ``m_t`` (covariance ``Phi P Phi^T``).
         """
         r_f, v_f = kepler_propagate(x_t[0], x_t[1], -dt_s)
-        mf = rtn_matrix(r_f, v_f) if m_fix is None else m_fix
+        mf = rtn_rows(r_f, v_f) if m_fix is None else m_fix
         phi = kepler_stm(r_f, v_f, dt_s)
         z = np.zeros((3, 3))
         to_eci = np.block([[mf.T, z], [z, mf.T]])
@@ -581,7 +550,7 @@ class NavigationModel:
         self._t_last = max(self._t_last, t_s)
         perfect = bool(self.cfg.perfect)
         zero = np.zeros(3)
-        m_rtn = {n: rtn_matrix(x[0], x[1]) for n, x in tr.items()}
+        m_rtn = {n: rtn_rows(x[0], x[1]) for n, x in tr.items()}
         rec = {"t_s": t_s, "abs": {}, "rel": {}}
 
         # absolute
@@ -620,7 +589,7 @@ class NavigationModel:
                 ddr, ddv, sr, sv, tf = zero, zero, zero, zero, t_s
             else:
                 ddr, ddv, sr, sv, tf = self._error_now(
-                    "rel", n, k_fix, t_s, (rd, vd), lambda dt: rtn_matrix(*kepler_propagate(rc, vc, -dt)), mc)
+                    "rel", n, k_fix, t_s, (rd, vd), lambda dt: rtn_rows(*kepler_propagate(rc, vc, -dt)), mc)
             deputies[n] = RelativeEstimate(n, t_s, dr_true + ddr, dv_true + ddv, np.array(sr),
                                            np.array(sv), mass)
             rec["rel"][n] = {"ddr_rtn_m": np.array(ddr), "ddv_rtn_mps": np.array(ddv),

@@ -17,8 +17,11 @@ from __future__ import annotations
 import zlib
 
 import numpy as np
+from scipy.signal import lfilter
 
 from sim.errors import ScenarioError
+
+__all__ = ["source_key", "stream", "gauss_markov"]
 
 
 def source_key(*source: str) -> tuple[int, ...]:
@@ -68,3 +71,34 @@ def stream(seed: int, *source: str) -> np.random.Generator:
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or int(seed) < 0:
         raise ScenarioError("seed", seed, "a non-negative integer (the run's random seed)")
     return np.random.default_rng(np.random.SeedSequence(int(seed), spawn_key=source_key(*source)))
+
+
+def gauss_markov(x_prev, w, phi, q) -> np.ndarray:
+    """The one first-order Gauss-Markov recursion of covey: ``x[k] = phi x[k-1] + q w[k]``.
+
+    Parameters
+    ----------
+    x_prev : float or np.ndarray, shape (m,)
+        The value before the first step (one per column).
+    w : np.ndarray, shape (n,) or (n, m)
+        Standard normal draws, one row per step.
+    phi, q : float or np.ndarray, shape (m,)
+        Per-step correlation ``exp(-dt / tau)`` and driving-noise scale (one per column); for a
+        stationary process of standard deviation sigma, ``q = sigma sqrt(1 - phi^2)``.
+
+    Returns
+    -------
+    np.ndarray, shape of ``w``
+        The values after each step. Computed with ``scipy.signal.lfilter`` (the same numbers,
+        bit for bit, as the plain loop: checked in tests/sim/test_navigation.py).
+    """
+    w = np.asarray(w, dtype=float)
+    if w.ndim == 1:
+        return lfilter([float(q)], [1.0, -float(phi)], w, zi=[float(phi) * float(x_prev)])[0]
+    phi = np.broadcast_to(np.asarray(phi, dtype=float), w.shape[1:])
+    q = np.broadcast_to(np.asarray(q, dtype=float), w.shape[1:])
+    x_prev = np.broadcast_to(np.asarray(x_prev, dtype=float), w.shape[1:])
+    out = np.empty_like(w)
+    for j in range(w.shape[1]):
+        out[:, j] = lfilter([q[j]], [1.0, -phi[j]], w[:, j], zi=[phi[j] * x_prev[j]])[0]
+    return out

@@ -44,7 +44,6 @@ several). ``mode_index`` in the samples is the *commanded* mode (it changes at `
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from typing import Callable, Mapping, Sequence
 
 import numpy as np
@@ -54,7 +53,12 @@ from sim.errors import PropagationError, ScenarioError
 from sim.orekit.forces import MAX_STEP_S, ForceEnvironment
 from sim.orekit.meanroe import deputy_mean_from_roe
 from sim.orekit.boot import BootInfo, boot
-from sim.models import geometry as scgeo
+from sim.models.frames import rtn_columns
+from sim.models.noise import gauss_markov
+from sim.truth.craft import AdvanceResult, Craft, Switch, TruthState, new_propagator
+from sim.truth.density import EARTH_ROTATION_RADPS, MsisBatch, geodetic_from_ecef  # noqa: F401
+from sim.truth.frames import TOD_GRID_S, grid_cached, rotation_matrix, vec3
+from sim.truth.sampling import make_trigger_handler
 
 DENSITY_ERROR_SPAWN_KEY = 0x44454E
 """Spawn key of the density-error random stream (ASCII ``"DEN"``):
@@ -66,9 +70,7 @@ MIN_DENSITY_SPAN_S = 60.0
 G0_MPS2 = 9.80665
 """Standard gravity used by the rocket equation, m/s^2 (Orekit's Constants.G0_STANDARD_GRAVITY)."""
 
-TOD_GRID_S = 1800.0
-"""Grid step of the exact GCRF -> TOD transforms interpolated for the samples, s (also the grid of the
-exact TOD -> ITRF transforms used by the batched density)."""
+
 
 TRUTH_THREADS_ENV = "COVEY_TRUTH_THREADS"
 """Environment variable that sets the default of ``TruthWorld(threads=None)``: how many spacecraft
@@ -121,433 +123,7 @@ def _pool(n: int):
     return pool
 
 
-EARTH_ROTATION_RADPS = 7.292115146706979e-5
-"""Earth rotation rate used between exact TOD -> ITRF transforms, rad/s: the rate of the Earth
-rotation angle, 2 pi x 1.00273781191135448 / 86400 s (IERS Conventions 2010, eq. 5.15 [memory]).
-Over the 900 s to the nearest grid node the neglected precession in right ascension (7e-12 rad/s),
-UT1 - UTC drift and polar-motion change move a LEO position by millimetres (a test checks < 1 m)."""
-
 _EPS_T = 1e-6  # s: times closer than this are the same instant
-
-
-@dataclass(frozen=True)
-class TruthState:
-    """True state of one spacecraft.
-
-    Attributes
-    ----------
-    name : str
-    t_s : float
-        Seconds since the epoch.
-    r_eci_m, v_eci_mps : np.ndarray, shape (3,)
-        Position and velocity in TOD, m and m/s.
-    mass_kg : float
-    mode : str
-        Commanded attitude mode.
-    """
-
-    name: str
-    t_s: float
-    r_eci_m: np.ndarray
-    v_eci_mps: np.ndarray
-    mass_kg: float
-    mode: str
-
-
-@dataclass(frozen=True)
-class AdvanceResult:
-    """Outcome of :meth:`TruthWorld.advance_to`.
-
-    Attributes
-    ----------
-    t_s : float
-        Time reached (the target, or the stop time).
-    stopped : bool
-        True when an event ended the run (``"altitude"``, ``"keep_out"``).
-    reason : str or None
-    """
-
-    t_s: float
-    stopped: bool
-    reason: str | None
-
-
-def _vec(v) -> np.ndarray:
-    return np.array([v.getX(), v.getY(), v.getZ()])
-
-
-def _rtn_basis(r: np.ndarray, v: np.ndarray) -> np.ndarray:
-    """Columns R, T, N (Orekit LOFType.QSW: Q radial, S along-track, W orbit normal)."""
-    rh = r / np.linalg.norm(r)
-    h = np.cross(r, v)
-    nh = h / np.linalg.norm(h)
-    return np.column_stack([rh, np.cross(nh, rh), nh])
-
-
-@dataclass
-class _Switch:
-    t_cmd: float  # commanded (slew start), s
-    t_eff: float  # drag area takes effect (slew midpoint), s
-    mode: str
-    area_m2: float  # effective drag area (nominal * factor)
-    kind: str = "mode_switch"
-    reported: bool = False
-
-
-def new_propagator(forces: ForceEnvironment, orbit):
-    """The truth's integrator settings: a NumericalPropagator on DormandPrince853 with Orekit's
-    tolerances for ``position_tolerance_m`` in equinoctial elements, minimum step 1 ms, step cap
-    :data:`sim.orekit.forces.MAX_STEP_S`, equinoctial orbit type and the environment's ``mu``; no force
-    model, state, handler or detector yet. Returns ``(propagator, integrator)`` (Orekit's
-    propagator does not give its integrator back; set its initial step before each call)."""
-    from org.hipparchus.ode.nonstiff import DormandPrince853Integrator
-    from org.orekit.orbits import OrbitType
-    from org.orekit.propagation.numerical import NumericalPropagator
-
-    tol = NumericalPropagator.tolerances(float(forces.env.position_tolerance_m), orbit, OrbitType.EQUINOCTIAL)
-    integrator = DormandPrince853Integrator(1e-3, MAX_STEP_S, tol[0], tol[1])
-    p = NumericalPropagator(integrator)
-    p.setOrbitType(OrbitType.EQUINOCTIAL)
-    p.setMu(forces.mu_m3ps2)
-    return p, integrator
-
-
-class _Craft:
-    """Book-keeping of one spacecraft (not public)."""
-
-    def __init__(self, world: "TruthWorld", cfg: SpacecraftConfig, state0):
-        self.world = world
-        self.cfg = cfg
-        self.name = cfg.name
-        self.bus = cfg.bus
-        self.modes = scgeo.mode_names(cfg.bus)
-        self.mode_index = {m: k for k, m in enumerate(self.modes)}
-        if cfg.initial_mode not in self.mode_index:
-            raise ScenarioError(f"spacecraft.{cfg.name}.initial_mode", cfg.initial_mode,
-                                f"one of the bus's attitude modes {list(self.modes)}")
-        self.areas = scgeo.mode_areas_m2(cfg.bus)
-        self.area_ref = max(self.areas.values())
-        self.srp_area = scgeo.srp_area_m2(cfg.bus, self.areas)
-        if cfg.bus.mass_kg <= 0:
-            raise ScenarioError(f"buses.{cfg.bus.name}.mass_kg", cfg.bus.mass_kg, "a positive mass, kg")
-        self.factors: dict[str, float] = {m: 1.0 for m in self.modes}
-        self.timeline: list[_Switch] = [_Switch(-math.inf, -math.inf, cfg.initial_mode, self.areas[cfg.initial_mode],
-                                                "initial")]
-        self.impulses: list[tuple[float, np.ndarray]] = []
-        self.state = state0
-        self.t_s = 0.0
-        env = world.forces
-        self.propagator, self.integrator = new_propagator(env, state0.getOrbit())
-        self.static_forces = env.static_forces(self.srp_area, cfg.bus.cr)
-        # buffers: committed (to drain) and of the running segment
-        self.samples: dict[str, list] = {k: [] for k in ("t", "rv", "m", "rho")}
-        self.seg: dict[str, list] = {k: [] for k in ("t", "rv", "m", "rho")}
-        from jpype import JArray, JDouble
-
-        self._jarray = lambda n: JArray(JDouble)(n)
-        self.tmp6 = self._jarray(6)
-        self.buf = self._jarray(6)
-        self.next_k = 0  # next grid index to sample
-        self.executed: list[dict] = []
-        self.seg_executed: list[dict] = []
-        self.sampler = _make_sampler(world, self)  # put on the propagator per segment (_run_segment)
-
-    # -- schedule lookups ---------------------------------------------------------------
-    def modes_at(self, t) -> list[str]:
-        """Commanded mode at each time of ``t`` (array_like)."""
-        tl = sorted(self.timeline, key=lambda s: s.t_cmd)
-        keys = np.array([s.t_cmd for s in tl])
-        idx = np.searchsorted(keys, np.asarray(t, dtype=float) + _EPS_T, side="right") - 1
-        return [tl[max(i, 0)].mode for i in np.atleast_1d(idx)]
-
-    def areas_at(self, t) -> np.ndarray:
-        """Drag area in effect at each time of ``t`` (array_like), m^2."""
-        tl = sorted(self.timeline, key=lambda s: s.t_eff)
-        keys = np.array([s.t_eff for s in tl])
-        vals = np.array([s.area_m2 for s in tl])
-        idx = np.searchsorted(keys, np.atleast_1d(np.asarray(t, dtype=float)) + _EPS_T, side="right") - 1
-        return vals[np.maximum(idx, 0)]
-
-    def mode_at(self, t: float) -> str:
-        return self.modes_at([t])[0]
-
-    def area_at(self, t: float) -> float:
-        return float(self.areas_at([t])[0])
-
-
-_SAMPLER_CLASS = None
-
-
-def _make_sampler(world: "TruthWorld", craft: _Craft):
-    """Python step handler sampling the grid ``k * log_step_s``. Per sample: interpolated state,
-    Cartesian GCRF state copied into a Java array (one call each), mass, and (only when the world's
-    ``density_method`` is ``"orekit"``) the model density. The GCRF to TOD rotation is applied
-    afterwards in numpy (:meth:`TruthWorld._gcrf_to_tod`); a batched density is computed at
-    :meth:`TruthWorld.drain_samples`. Called once per integrator step, never inside a force
-    evaluation. The proxy class is created once."""
-    global _SAMPLER_CLASS
-    if _SAMPLER_CLASS is None:
-        from java.lang import System
-        from jpype import JImplements, JOverride
-        from org.orekit.orbits import OrbitType, PositionAngleType
-        from org.orekit.propagation.sampling import OrekitStepHandler
-
-        to_array = OrbitType.CARTESIAN.mapOrbitToArray
-        mean_pa = PositionAngleType.MEAN
-        arraycopy = System.arraycopy
-
-        @JImplements(OrekitStepHandler)
-        class _Sampler:
-            def __init__(self, world, craft):
-                self.craft = craft
-                self.epoch = world.forces.epoch
-                self.gcrf = world.forces.gcrf
-                self.h = float(world.run.log_step_s)
-                self.atm = world.forces.atmosphere if world.density_method == "orekit" else None
-
-            @JOverride
-            def init(self, s0, t):
-                pass
-
-            @JOverride
-            def handleStep(self, interpolator):
-                craft, epoch, h, atm, gcrf = self.craft, self.epoch, self.h, self.atm, self.gcrf
-                t1 = interpolator.getCurrentState().getDate().durationFrom(epoch)
-                k = craft.next_k
-                seg = craft.seg
-                tt, mm, rho = seg["t"], seg["m"], seg["rho"]
-                tmp, buf = craft.tmp6, craft.buf
-                n = len(tt)
-                while k * h <= t1 + _EPS_T:
-                    date = epoch.shiftedBy(k * h)
-                    s = interpolator.getInterpolatedState(date)
-                    to_array(s.getOrbit(), mean_pa, tmp, None)
-                    arraycopy(tmp, 0, buf, 6 * n, 6)
-                    tt.append(k * h)
-                    mm.append(s.getMass())
-                    if atm is not None:
-                        rho.append(atm.getDensity(date, s.getPosition(), gcrf))
-                    k += 1
-                    n += 1
-                craft.next_k = k
-
-            @JOverride
-            def finish(self, s):
-                pass
-
-        _SAMPLER_CLASS = _Sampler
-    return _SAMPLER_CLASS(world, craft)
-
-
-_TRIGGER_CLASS = None
-
-
-def _make_trigger_handler(world: "TruthWorld", craft: _Craft, dv_rtn: np.ndarray, isp_s: float):
-    """EventHandler of an impulse's DateDetector: records the pre-impulse state and returns STOP,
-    which makes the wrapping ImpulseManeuver apply the impulse (Orekit's contract). Called once
-    per impulse, never inside a force evaluation. The proxy class is created once per process."""
-    global _TRIGGER_CLASS
-    if _TRIGGER_CLASS is None:
-        from jpype import JImplements, JOverride
-        from org.hipparchus.ode.events import Action
-        from org.orekit.propagation.events.handlers import EventHandler
-
-        @JImplements(EventHandler)
-        class _Trigger:
-            def __init__(self, world, craft, dv_rtn, isp_s):
-                self.world, self.craft, self.dv_rtn, self.isp_s = world, craft, dv_rtn, isp_s
-
-            @JOverride
-            def init(self, s0, t, detector):
-                pass
-
-            @JOverride
-            def eventOccurred(self, s, detector, increasing):
-                self.craft.seg_executed.append(self.world._impulse_record(self.craft, s, self.dv_rtn, self.isp_s))
-                return Action.STOP
-
-            @JOverride
-            def resetState(self, detector, s):
-                return s
-
-            @JOverride
-            def finish(self, s, detector):
-                pass
-
-        _TRIGGER_CLASS = _Trigger
-    return _TRIGGER_CLASS(world, craft, dv_rtn, isp_s)
-
-
-def geodetic_from_ecef(r_m: np.ndarray, a_m: float, f: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Geodetic latitude, longitude (rad) and height (m) of Earth-fixed positions on an ellipsoid.
-
-    Closed form of Vermeille, "Direct transformation from geocentric coordinates to geodetic
-    coordinates", Journal of Geodesy 76, 451-454 (2002); valid outside the evolute of the meridian
-    ellipse (|r| above about 43 km for the Earth), so everywhere a spacecraft flies.
-
-    Parameters
-    ----------
-    r_m : np.ndarray, shape (K, 3)
-        Positions in the ellipsoid's body frame (ITRF), m.
-    a_m, f : float
-        Equatorial radius (m) and flattening.
-
-    Returns
-    -------
-    lat_rad, lon_rad, h_m : np.ndarray, shape (K,)
-    """
-    e2 = f * (2.0 - f)
-    e4 = e2 * e2
-    x, y, z = r_m[:, 0], r_m[:, 1], r_m[:, 2]
-    w2 = x * x + y * y
-    p = w2 / (a_m * a_m)
-    q = (1.0 - e2) * z * z / (a_m * a_m)
-    r = (p + q - e4) / 6.0
-    s = e4 * p * q / (4.0 * r ** 3)
-    t = np.cbrt(1.0 + s + np.sqrt(s * (2.0 + s)))
-    u = r * (1.0 + t + 1.0 / t)
-    v = np.sqrt(u * u + e4 * q)
-    w = e2 * (u + v - q) / (2.0 * v)
-    k = np.sqrt(u + v + w * w) - w
-    d = k * np.sqrt(w2) / (k + e2)
-    dz = np.sqrt(d * d + z * z)
-    return 2.0 * np.arctan2(z, d + dz), np.arctan2(y, x), (k + e2 - 1.0) / k * dz
-
-
-def _rotation_matrix(transform) -> np.ndarray:
-    """The (3, 3) rotation matrix of an Orekit (static) transform (``r_to = M r_from``)."""
-    return np.array([list(row) for row in transform.getRotation().getMatrix()])
-
-
-def _grid_cached(cache: dict, key: int, compute: Callable[[], tuple], limit: int = 10000) -> tuple:
-    """``cache[key]``, computed by ``compute()`` on a miss; the cache is emptied past ``limit``
-    entries (the exact transforms on the :data:`TOD_GRID_S` grid, reused by nearby samples)."""
-    hit = cache.get(key)
-    if hit is None:
-        hit = compute()
-        if len(cache) > limit:
-            cache.clear()
-        cache[key] = hit
-    return hit
-
-
-class _MsisBatch:
-    """Logged NRLMSISE-00 density of many samples in one pymsis call (not public).
-
-    Inputs as Orekit's ``NRLMSISE00.getDensity`` in mean local solar time builds them (read from
-    its byte code, Orekit 13.1): day of year and seconds of day in **UT1** (the time scale of the
-    ``NRLMSISE00(parameters, sun, earth)`` constructor: IERS 2010, simple EOP; at a UTC midnight
-    the day of year is still the previous one while UT1 - UTC < 0, a 0.5 % density step), local
-    solar time ``sec / 3600 + lon / 15``, geodetic latitude, longitude and altitude on
-    ``forces.earth``, and ``getDailyFlux``, ``getAverageFlux`` and ``getAp(date)[0]`` of
-    ``forces.space_weather`` with the default switches (switch 9 = 1: only the daily Ap is used;
-    pymsis ``geomagnetic_activity=1``). Orekit's CSSI reader holds the solar inputs constant over a
-    UTC day, or interpolates them linearly between file lines dated at midnight (after the daily
-    predictions), so two queries per UTC day (00:00 and 12:00) give the exact value at any time of
-    the day; they are cached per day.
-    """
-
-    def __init__(self, world: "TruthWorld", pymsis_module):
-        from sim.orekit.forces import parse_epoch
-
-        f = world.forces
-        self.world = world
-        self.calculate = pymsis_module.calculate
-        self.a_m = float(f.earth.getEquatorialRadius())
-        self.flattening = float(f.earth.getFlattening())
-        self.sw = f.space_weather
-        ep = parse_epoch(world.run.epoch_utc).replace(tzinfo=None)
-        self.epoch_day = np.datetime64(ep.date(), "D")
-        self.epoch_sod = ep.hour * 3600.0 + ep.minute * 60.0 + ep.second + ep.microsecond * 1e-6
-        self._days: dict[int, np.ndarray] = {}
-        self._nodes: dict[int, tuple[np.ndarray, float]] = {}
-        from org.orekit.time import TimeScalesFactory
-        from org.orekit.utils import IERSConventions
-
-        self.eop = TimeScalesFactory.getUT1(IERSConventions.IERS_2010, True).getEOPHistory()
-
-    def _day_inputs(self, n: int) -> np.ndarray:
-        """(2, 3): F10.7 (previous day), F10.7A, daily Ap at 00:00 and 12:00 UTC of day ``n``
-        (days after the epoch's UTC day)."""
-        hit = self._days.get(n)
-        if hit is None:
-            from org.orekit.time import AbsoluteDate, TimeScalesFactory
-
-            utc = TimeScalesFactory.getUTC()
-            day = (self.epoch_day + np.timedelta64(n, "D")).astype(object)
-            rows = []
-            for hour in (0, 12):
-                date = AbsoluteDate(day.year, day.month, day.day, hour, 0, 0.0, utc)
-                try:
-                    rows.append((float(self.sw.getDailyFlux(date)), float(self.sw.getAverageFlux(date)),
-                                 float(self.sw.getAp(date)[0])))
-                except Exception:  # Orekit: no data at 12:00, so the data end at 00:00, the only
-                    if not rows:   # time of that day a sample can have: the 00:00 values are exact
-                        raise
-                    rows.append(rows[0])
-            hit = np.array(rows)
-            self._days[n] = hit
-        return hit
-
-    def _node(self, j: int) -> tuple[np.ndarray, float]:
-        """At ``j * TOD_GRID_S``: Orekit's exact TOD -> ITRF rotation matrix (r_itrf = M r_tod) and
-        UT1 - UTC, s."""
-        def exact():
-            f = self.world.forces
-            date = f.epoch.shiftedBy(float(j * TOD_GRID_S))
-            return _rotation_matrix(f.tod.getStaticTransformTo(f.itrf, date)), float(self.eop.getUT1MinusUTC(date))
-
-        return _grid_cached(self._nodes, j, exact)
-
-    def tod_to_itrf(self, t: np.ndarray, r_tod: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """TOD positions (K, 3) at times ``t`` (K,) -> ITRF (K, 3), m; also UT1 - UTC (K,), s.
-
-        ``M(t) = M(t_j) R3(omega (t - t_j))`` with ``M(t_j)`` Orekit's exact TOD -> ITRF rotation
-        at the nearest grid node (polar motion and Greenwich apparent sidereal time at ``t_j``) and
-        ``R3`` the rotation about the true pole by the Earth rotation since then. UT1 - UTC is the
-        node's (it drifts by about 2 ms a day).
-        """
-        j = np.rint(t / TOD_GRID_S).astype(int)
-        ang = EARTH_ROTATION_RADPS * (t - j * TOD_GRID_S)
-        c, sn = np.cos(ang), np.sin(ang)
-        x, y = r_tod[:, 0], r_tod[:, 1]
-        r1 = np.column_stack([c * x + sn * y, c * y - sn * x, r_tod[:, 2]])
-        uj, inv = np.unique(j, return_inverse=True)
-        nodes = [self._node(int(jj)) for jj in uj]
-        inv = inv.reshape(-1)
-        mats = np.stack([n[0] for n in nodes])[inv]
-        dut1 = np.array([n[1] for n in nodes])[inv]
-        return np.einsum("kij,kj->ki", mats, r1), dut1
-
-    def density(self, t: np.ndarray, r_tod: np.ndarray) -> np.ndarray:
-        """Model density (no truth density error) at TOD positions (K, 3) and times ``t`` (K,), kg/m^3."""
-        t = np.asarray(t, dtype=float)
-        if t.size == 0:
-            return np.zeros(0)
-        r_itrf, dut1 = self.tod_to_itrf(t, r_tod)
-        lat, lon, h = geodetic_from_ecef(r_itrf, self.a_m, self.flattening)
-        lon_deg = np.degrees(lon)
-        # solar inputs: by UTC day (Orekit's CSSI lines are dated in UTC)
-        sod_utc = self.epoch_sod + t
-        n = np.floor(sod_utc / 86400.0).astype(int)
-        un, inv = np.unique(n, return_inverse=True)
-        tab = np.stack([self._day_inputs(int(d)) for d in un])[inv.reshape(-1)]  # (K, 2, 3)
-        sw = tab[:, 0, :] + (tab[:, 1, :] - tab[:, 0, :]) * ((sod_utc - 86400.0 * n) / 43200.0)[:, None]
-        # model time: Orekit's NRLMSISE00 takes day of year and seconds of day in UT1
-        # (NRLMSISE00(parameters, sun, earth) uses UT1, IERS 2010, simple EOP)
-        sod_ut1 = sod_utc + dut1
-        n1 = np.floor(sod_ut1 / 86400.0).astype(int)
-        sec = sod_ut1 - 86400.0 * n1
-        # pymsis reads whole seconds (datetime64[s]): round within the same day, and move the
-        # longitude by the remainder so that the local solar time sec/3600 + lon/15 stays exact
-        # (only the small UT-longitude terms then see the <= 1 s offset)
-        sec_i = np.minimum(np.rint(sec), 86399.0)
-        lon_deg = lon_deg + (sec - sec_i) * (360.0 / 86400.0)
-        dates = (self.epoch_day + n1.astype("timedelta64[D]")).astype("datetime64[s]") \
-            + sec_i.astype(np.int64).astype("timedelta64[s]")
-        out = self.calculate(dates, lon_deg, np.degrees(lat), h / 1e3, f107s=sw[:, 0], f107as=sw[:, 1],
-                             aps=np.repeat(sw[:, 2:3], 7, axis=1), version=0, geomagnetic_activity=1)
-        return np.asarray(out, dtype=float).reshape(t.size, -1)[:, 0]  # mass density, kg/m^3
 
 
 class TruthWorld:
@@ -604,20 +180,20 @@ class TruthWorld:
         self._stopped: str | None = None
         self._events: list[dict] = []
         self._tod_cache: dict[int, tuple[np.ndarray, np.ndarray]] = {}
-        self._msis: _MsisBatch | None = None
+        self._msis: MsisBatch | None = None
         self.density_method = self._choose_density_method(bool(batched_density))
         self._init_density_error()
         names = [sc.name for sc in run.spacecraft]
         if len(set(names)) != len(names):
             raise ScenarioError("spacecraft names", names, "unique names")
         self.names = tuple(names)
-        self._crafts: dict[str, _Craft] = {}
+        self._crafts: dict[str, Craft] = {}
         chief_mean = None
         for k, sc in enumerate(run.spacecraft):
             mean = self._mean_elements_of(sc, chief_mean, is_chief=(k == 0))
             if k == 0:
                 chief_mean = mean
-            self._crafts[sc.name] = _Craft(self, sc, self._initial_state(mean, sc.bus.mass_kg))
+            self._crafts[sc.name] = Craft(self, sc, self._initial_state(mean, sc.bus.mass_kg))
         min_alt = run.events.min_altitude_km * 1e3
         for c in self._crafts.values():
             alt = self._altitude_m(c.state)
@@ -654,7 +230,7 @@ class TruthWorld:
                + _dt.timedelta(seconds=float(tm.getSecondsInLocalDay())))
         if abs((got - expect).total_seconds()) > 1e-3:
             return "orekit"
-        self._msis = _MsisBatch(self, pymsis)
+        self._msis = MsisBatch(self, pymsis)
         return "pymsis"
 
     # ---------------------------------------------------------------------------------
@@ -718,8 +294,7 @@ class TruthWorld:
         q = de.sigma * math.sqrt(1.0 - phi * phi)
         x = np.empty(n)
         x[0] = de.sigma * w[0]  # stationary start
-        for k in range(1, n):
-            x[k] = phi * x[k - 1] + q * w[k]
+        x[1:] = gauss_markov(x[0], w[1:], phi, q)
         self._rho_t = np.arange(n) * dt
         self._rho_f = np.maximum(0.0, 1.0 + de.bias + x)
 
@@ -735,7 +310,7 @@ class TruthWorld:
     # ---------------------------------------------------------------------------------
     # public queries
     # ---------------------------------------------------------------------------------
-    def _craft(self, name: str) -> _Craft:
+    def _craft(self, name: str) -> Craft:
         try:
             return self._crafts[name]
         except KeyError:
@@ -754,7 +329,7 @@ class TruthWorld:
         out = {}
         for name, c in self._crafts.items():
             pv = c.state.getPVCoordinates(self.forces.tod)
-            out[name] = TruthState(name, self.t_s, _vec(pv.getPosition()), _vec(pv.getVelocity()),
+            out[name] = TruthState(name, self.t_s, vec3(pv.getPosition()), vec3(pv.getVelocity()),
                                    float(c.state.getMass()), c.mode_at(self.t_s))
         return out
 
@@ -807,7 +382,7 @@ class TruthWorld:
             area = c.areas[cur] * c.factors[cur]
             t_eff = max([self.t_s] + [sw.t_eff for sw in c.timeline if math.isfinite(sw.t_eff)])
             if area != c.area_at(t_eff):
-                c.timeline.append(_Switch(self.t_s, t_eff, cur, area, "area_factor"))
+                c.timeline.append(Switch(self.t_s, t_eff, cur, area, "area_factor"))
         slew = float(c.bus.slew_time_s)
         for t, m in new:
             fac = c.factors[m]
@@ -816,7 +391,7 @@ class TruthWorld:
                 if not (math.isfinite(f2) and f2 >= 0):
                     raise ScenarioError(f"{name}.area_factor_fn", f2, "a non-negative finite factor")
                 fac *= f2
-            c.timeline.append(_Switch(t, t + 0.5 * slew, m, c.areas[m] * fac))
+            c.timeline.append(Switch(t, t + 0.5 * slew, m, c.areas[m] * fac))
 
     def set_impulses(self, name: str, impulses: Sequence[tuple[float, np.ndarray]]) -> None:
         """Replace the pending impulses (``t >= t_s``) of a spacecraft.
@@ -865,9 +440,9 @@ class TruthWorld:
         def exact():
             f = self.forces
             tr = f.gcrf.getTransformTo(f.tod, f.epoch.shiftedBy(float(k * TOD_GRID_S)))
-            return _rotation_matrix(tr), _vec(tr.getRotationRate())
+            return rotation_matrix(tr), vec3(tr.getRotationRate())
 
-        return _grid_cached(self._tod_cache, k, exact)
+        return grid_cached(self._tod_cache, k, exact)
 
     def _gcrf_to_tod(self, t: np.ndarray, rv_gcrf: np.ndarray) -> np.ndarray:
         """GCRF position-velocity (K, 6) at times ``t`` (K,) -> TOD (K, 6).
@@ -894,22 +469,22 @@ class TruthWorld:
             out[sel, :3], out[sel, 3:] = r, v
         return out
 
-    def _impulse_record(self, c: _Craft, s, dv_rtn: np.ndarray, isp_s: float) -> dict:
+    def _impulse_record(self, c: Craft, s, dv_rtn: np.ndarray, isp_s: float) -> dict:
         f = self.forces
         date = s.getDate()
         pv = s.getPVCoordinates(f.gcrf)
-        basis = _rtn_basis(_vec(pv.getPosition()), _vec(pv.getVelocity()))
+        basis = rtn_columns(vec3(pv.getPosition()), vec3(pv.getVelocity()))
         dv_gcrf = basis @ dv_rtn
         from org.hipparchus.geometry.euclidean.threed import Vector3D
 
-        dv_tod = _vec(f.gcrf.getStaticTransformTo(f.tod, date).transformVector(Vector3D(*map(float, dv_gcrf))))
+        dv_tod = vec3(f.gcrf.getStaticTransformTo(f.tod, date).transformVector(Vector3D(*map(float, dv_gcrf))))
         m0 = float(s.getMass())
         return dict(name=c.name, t_s=float(date.durationFrom(f.epoch)), dv_rtn_mps=np.array(dv_rtn, dtype=float),
                     dv_eci_mps=dv_tod, mass_before_kg=m0,
                     mass_after_kg=m0 * math.exp(-float(np.linalg.norm(dv_rtn)) / (isp_s * G0_MPS2)),
                     _dv_gcrf=dv_gcrf)
 
-    def _apply_impulse_now(self, c: _Craft, dv_rtn: np.ndarray) -> None:
+    def _apply_impulse_now(self, c: Craft, dv_rtn: np.ndarray) -> None:
         """Apply an impulse to the current state (at the start of a segment)."""
         from org.hipparchus.geometry.euclidean.threed import Vector3D
         from org.orekit.orbits import CartesianOrbit
@@ -919,13 +494,13 @@ class TruthWorld:
         f = self.forces
         rec = self._impulse_record(c, c.state, dv_rtn, c.bus.thruster.isp_s)
         pv = c.state.getPVCoordinates(f.gcrf)
-        v_new = _vec(pv.getVelocity()) + rec["_dv_gcrf"]
+        v_new = vec3(pv.getVelocity()) + rec["_dv_gcrf"]
         orbit = CartesianOrbit(PVCoordinates(pv.getPosition(), Vector3D(*map(float, v_new))), f.gcrf,
                                c.state.getDate(), f.mu_m3ps2)
         c.state = SpacecraftState(orbit, rec["mass_after_kg"])
         c.seg_executed.append(rec)
 
-    def _drag_force(self, c: _Craft, t0: float, t1: float):
+    def _drag_force(self, c: Craft, t0: float, t1: float):
         from org.orekit.forces.drag import DragForce, IsotropicDrag
 
         f = self.forces
@@ -952,7 +527,7 @@ class TruthWorld:
             d_rho.setValue(float(fk), date)
         return DragForce(f.atmosphere, sens)
 
-    def _run_segment(self, c: _Craft, t1: float) -> tuple[float, str | None]:
+    def _run_segment(self, c: Craft, t1: float) -> tuple[float, str | None]:
         """One propagate() of a spacecraft from its current time to t1. Returns (t reached, stop reason)."""
         from org.orekit.attitudes import LofOffset
         from org.orekit.forces.maneuvers import ImpulseManeuver
@@ -985,7 +560,7 @@ class TruthWorld:
             qsw = LofOffset(f.gcrf, LOFType.QSW)
             isp = float(c.bus.thruster.isp_s)
             for t, dv in inside:
-                trig = DateDetector(f.epoch.shiftedBy(float(t))).withHandler(_make_trigger_handler(self, c, dv, isp))
+                trig = DateDetector(f.epoch.shiftedBy(float(t))).withHandler(make_trigger_handler(self, c, dv, isp))
                 p.addEventDetector(ImpulseManeuver(trig, qsw, Vector3D(*map(float, dv)), isp))
         p.resetInitialState(c.state)
         c.integrator.setInitialStepSize(float(min(MAX_STEP_S, max(t1 - t0, 1e-3))))
@@ -1043,7 +618,7 @@ class TruthWorld:
         integ.setInitialStepSize(MAX_STEP_S)
         return p, integ
 
-    def _oem_segment(self, c: _Craft):
+    def _oem_segment(self, c: Craft):
         """A CCSDS OEM segment writer (Orekit's StreamingOemWriter, a Java fixed-step handler) that
         writes the GCRF state at every sampling step into a Java StringBuilder, times as seconds
         since the run epoch. Returns (handler, builder)."""
@@ -1071,7 +646,7 @@ class TruthWorld:
         writer = StreamingOemWriter(gen, OemWriter(IERSConventions.IERS_2010, ctx, f.epoch), hdr, md)
         return writer.newSegment(), text
 
-    def _take_oem_samples(self, c: _Craft, text: str, t_end: float, m0: float, impulses: list) -> None:
+    def _take_oem_samples(self, c: Craft, text: str, t_end: float, m0: float, impulses: list) -> None:
         """Grid samples of one segment from its OEM text (km, km/s, GCRF) into ``c.seg``; the mass
         follows the impulses executed in the segment (it changes nowhere else)."""
         h = float(self.run.log_step_s)
@@ -1096,13 +671,13 @@ class TruthWorld:
         c.seg["rv"].append(self._gcrf_to_tod(t, rv))
         c.next_k = int(k[-1]) + 1
 
-    def _begin(self, c: _Craft):
+    def _begin(self, c: Craft):
         for buf in c.seg.values():
             buf.clear()
         c.seg_executed.clear()
         return (c.state, c.t_s, c.next_k, list(c.impulses))
 
-    def _restore(self, c: _Craft, saved) -> None:
+    def _restore(self, c: Craft, saved) -> None:
         c.state, c.t_s, c.next_k, c.impulses = saved[0], saved[1], saved[2], list(saved[3])
         for buf in c.seg.values():
             buf.clear()

@@ -17,7 +17,7 @@ import pytest
 import sim.cli.main
 import sim.scenario.reader
 from sim.cli.main import _Progress, main
-from sim.log.recorder import read_log
+from sim.log.reader import read_log
 
 
 @pytest.mark.parametrize("argv", [["--help"], ["-h"], ["run", "-h"], ["validate", "--help"],

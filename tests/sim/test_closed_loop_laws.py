@@ -65,7 +65,7 @@ import pytest
 from guidance.constants import J2, MU_EARTH_M3PS2, OMEGA_EARTH_RADPS, R_EARTH_M
 from guidance.density import DensityModel, relative_wind_speed_mps
 from guidance.laws.base import COMMON_SETTINGS
-from sim.log.recorder import read_log
+from sim.log.reader import read_log
 from sim.loop.run import run_scenario
 from sim.scenario.reader import load_scenario
 

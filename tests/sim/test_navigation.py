@@ -449,3 +449,25 @@ def test_error_process_rejects_going_back():
     p.at(5)
     with pytest.raises(ValueError):
         p.at(4)
+
+
+def test_gauss_markov_is_the_plain_recursion_bit_for_bit():
+    # x[k] = phi x[k-1] + q w[k]: the first-order Gauss-Markov recursion (e.g. Brown & Hwang,
+    # "Introduction to Random Signals and Applied Kalman Filtering", 4th ed., Wiley 2012, sec. 2.9);
+    # the lfilter form must give the loop's numbers exactly (the logs depend on it)
+    from sim.models.noise import gauss_markov
+
+    rng = np.random.default_rng(7)
+    for n in (1, 3, 9, 400):
+        w = rng.standard_normal((n, 3))
+        phi, q, x0 = np.array([0.9, 0.5, 0.99]), np.array([0.1, 1.0, 0.01]), rng.standard_normal(3)
+        x, loop = x0.copy(), []
+        for row in w:
+            x = phi * x + q * row
+            loop.append(x)
+        assert np.array_equal(gauss_markov(x0, w, phi, q), np.array(loop))
+        y, x1 = [], float(x0[0])
+        for v in w[:, 0]:
+            x1 = 0.9 * x1 + 0.1 * v
+            y.append(x1)
+        assert np.array_equal(gauss_markov(x0[0], w[:, 0], 0.9, 0.1), np.array(y))

@@ -11,7 +11,8 @@ import numpy as np
 import pytest
 
 from sim.errors import LogFormatError, PropagationError
-from sim.log.recorder import SCHEMA_VERSION, RunRecorder, read_log, units_for
+from sim.log.reader import read_log
+from sim.log.recorder import SCHEMA_VERSION, RunRecorder, units_for
 from sim.loop.run import run_scenario
 from sim.scenario.reader import load_scenario
 
