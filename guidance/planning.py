@@ -61,8 +61,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .dynamics import (_leggauss, control_impulse, j2_coefficients, mean_arg_latitude, mean_motion, stm_j2,
-                       stm_kepler)
+from .dynamics import (control_impulse, gauss_legendre, j2_coefficients, mean_arg_latitude, mean_motion,
+                       stm_j2, stm_kepler)
 
 try:  # HiGHS's own bindings (a dependency of covey); imported lazily for a clear error
     import highspy as _highspy
@@ -288,7 +288,7 @@ def _drag_matrices(chief_oe, s0, s1, tf_s, t_ref_s, stm, n_quad):
         sel = np.nonzero((m_nodes == m) & (span > 0))[0]
         if sel.size == 0:
             continue
-        x, w = _leggauss(int(m))
+        x, w = gauss_legendre(int(m))
         tau = s0[sel, None] + 0.5 * (x + 1.0)[None, :] * span[sel, None]  # (k, m)
         u = mean_arg_latitude(chief_oe, tau.ravel(), t_ref_s)
         bT = control_impulse(a, u).reshape(-1, 6, 3)[:, :, 1]  # (k*m, 6)
