@@ -673,12 +673,6 @@ class MinFuelProgram:
         return dv, float(np.sum(nrm))
 
 
-def solve_min_fuel(G, H, delta, dv_max, *, soft_weight=None, tol_rel=1e-5, warm_columns=()):
-    """One-shot form of :class:`MinFuelProgram` (see there for the arguments)."""
-    prog = MinFuelProgram(G, H, delta, dv_max, soft_weight=soft_weight, warm_columns=warm_columns)
-    return prog.solve(tol_rel=tol_rel)
-
-
 # --------------------------------------------------------------------------------------------
 # Plans in physical units
 # --------------------------------------------------------------------------------------------

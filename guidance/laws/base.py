@@ -24,7 +24,6 @@ import numpy as np
 
 from ..density import DensityModel, differential_along_track_accel_mps2, relative_wind_speed_mps
 from ..constants import R_EARTH_M
-from ..dynamics import mean_motion
 from ..estimation import nav_to_mean
 from ..interface import (Diagnostics, GuidanceInputError, GuidanceOutput, Impulse, Mission,
                          ModeSwitch, NavSolution, SpacecraftCaps, SpacecraftCommand)
@@ -511,16 +510,3 @@ def warm_directions(impulses) -> tuple:
     """``(t_s, unit direction)`` of every non-zero impulse ``(t_s, dv (3,))``: the starting columns
     (``PlanRequest.warm_columns``) a re-plan takes from impulses planned before."""
     return tuple((t, d / np.linalg.norm(d)) for t, d in impulses if np.linalg.norm(d) > 0)
-
-
-def settings_table(cls) -> str:
-    """Markdown table of a law's settings (name, default, description), for the docs."""
-    rows = ["| setting | default | meaning |", "| --- | --- | --- |"]
-    for k, (d, _c, doc) in cls.settings_spec().items():
-        rows.append(f"| `{k}` | `{d!r}` | {doc} |")
-    return "\n".join(rows)
-
-
-def mean_motion_of(a_m: float) -> float:
-    """Keplerian mean motion of a semi-major axis, rad/s (re-export for laws)."""
-    return float(mean_motion(a_m))
