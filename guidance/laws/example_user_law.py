@@ -24,15 +24,15 @@ from ..dynamics import mean_motion
 from ..estimation import nav_to_mean
 from ..interface import (Diagnostics, GuidanceInputError, GuidanceOutput, Mission, ModeSwitch,
                          NavSolution, SpacecraftCommand)
-from .base import parse_settings, _number, _string, _choice
+from .base import parse_settings, setting_choice, setting_number, setting_string
 
 SETTINGS = {
-    "deadband_m": (10.0, _number(0.0, unit="m"), "along-track error (a-scaled) left uncorrected, m"),
-    "chief_mode": ("nominal", _string, "attitude mode the chief holds"),
-    "hold_mode": ("nominal", _string, "deputy mode inside the dead band"),
-    "density_model": ("exponential", _choice("exponential", "harris_priester"), "density model"),
-    "f107_forecast_sfu": (150.0, _number(50.0, 400.0, unit="sfu"), "forecast F10.7, sfu"),
-    "density_coefficient": (1.0, _number(1e-3, 1e3), "multiplies the density estimate"),
+    "deadband_m": (10.0, setting_number(0.0, unit="m"), "along-track error (a-scaled) left uncorrected, m"),
+    "chief_mode": ("nominal", setting_string, "attitude mode the chief holds"),
+    "hold_mode": ("nominal", setting_string, "deputy mode inside the dead band"),
+    "density_model": ("exponential", setting_choice("exponential", "harris_priester"), "density model"),
+    "f107_forecast_sfu": (150.0, setting_number(50.0, 400.0, unit="sfu"), "forecast F10.7, sfu"),
+    "density_coefficient": (1.0, setting_number(1e-3, 1e3), "multiplies the density estimate"),
 }
 
 
