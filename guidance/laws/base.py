@@ -282,6 +282,28 @@ class PlannerLaw:
     def _extra_setup(self) -> None:
         """Hook for subclasses (after the common set-up)."""
 
+    def believed_density_kgpm3(self, r_eci_m: np.ndarray, t_s: np.ndarray | None = None) -> np.ndarray:
+        """This law's density belief at given positions (its settings' density model), kg/m^3.
+
+        The optional method of :class:`guidance.interface.GuidanceLaw`, valid after :meth:`setup`.
+
+        Parameters
+        ----------
+        r_eci_m : np.ndarray, shape (K, 3)
+            Positions in covey's ECI (TOD), m.
+        t_s : np.ndarray, shape (K,), optional
+            Their times, s since epoch; ignored (the belief depends on altitude only).
+
+        Returns
+        -------
+        np.ndarray, shape (K,)
+            :meth:`guidance.density.DensityModel.density_at_eci_kgpm3` of the model built from
+            ``density_model``, ``f107_forecast_sfu`` and ``density_coefficient``, kg/m^3.
+        """
+        if self.density is None:
+            raise GuidanceInputError("setup", None, "call setup(mission) before believed_density_kgpm3()")
+        return self.density.density_at_eci_kgpm3(r_eci_m)
+
     # ---- per step -------------------------------------------------------------------------
     def _wants_plan(self, name: str, st: DeputyState, t_s: float, nav: NavSolution) -> bool:
         """Whether to (re)plan deputy ``name`` at ``t_s`` (default: only at the first call)."""

@@ -56,6 +56,11 @@ class DragBangBang:
         self.mission = mission
         self.mode = {d.name: d.initial_mode for d in mission.deputies}
 
+    def believed_density_kgpm3(self, r_eci_m: np.ndarray, t_s: np.ndarray | None = None) -> np.ndarray:
+        """The law's density belief at positions ``r_eci_m`` (K, 3) in ECI (TOD), m -> (K,) kg/m^3
+        (the optional method of guidance.interface.GuidanceLaw; ``t_s`` (K,) is ignored)."""
+        return self.density.density_at_eci_kgpm3(r_eci_m)
+
     def step(self, t_s: float, nav: NavSolution) -> GuidanceOutput:
         try:
             state = nav_to_mean(nav)
