@@ -42,7 +42,7 @@ from typing import Any, Mapping
 
 import numpy as np
 
-from .constants import MU_EARTH_M3PS2, OMEGA_EARTH_RADPS
+from .constants import MU_EARTH_M3PS2, OMEGA_EARTH_RADPS, R_EARTH_M
 from .interface import GuidanceInputError, SpacecraftCaps
 
 DENSITY_MODELS = ("exponential", "harris_priester")
@@ -190,6 +190,27 @@ class DensityModel:
         else:
             rho = _harris_priester_table_density(h_km)
         return self.density_coefficient * rho * flux_factor(h_km, self.f107_forecast_sfu)
+
+    def density_at_eci_kgpm3(self, r_eci_m) -> np.ndarray:
+        """Density at positions, kg/m^3, with the altitude taken above a spherical Earth
+        (``|r| - R_EARTH_M``, the altitude guidance uses for the chief's orbit).
+
+        Parameters
+        ----------
+        r_eci_m : array_like, shape (K, 3)
+            Positions in covey's ECI (TOD), m.
+
+        Returns
+        -------
+        np.ndarray, shape (K,)
+
+        Raises
+        ------
+        GuidanceInputError
+            As :meth:`density_kgpm3`, for a non-finite position or one below the model's range.
+        """
+        alt = np.linalg.norm(np.asarray(r_eci_m, float), axis=1) - R_EARTH_M
+        return np.asarray(self.density_kgpm3(alt), float)
 
     def __repr__(self) -> str:
         return (f"DensityModel(model={self.model!r}, f107_forecast_sfu={self.f107_forecast_sfu}, "

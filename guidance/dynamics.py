@@ -189,7 +189,7 @@ def drag_segment_input(chief_oe, t0_s, t1_s, tf_s, t_ref_s=0.0, n_quad=8, stm=st
     if span <= 0:
         return np.zeros(6)
     panels = max(1, int(np.ceil(span / period - 1e-9)))
-    x, w = _leggauss(int(n_quad))
+    x, w = gauss_legendre(int(n_quad))
     h = span / panels
     starts = float(t0_s) + h * np.arange(panels)
     tau = (starts[:, None] + 0.5 * (x[None, :] + 1.0) * h).ravel()
@@ -203,7 +203,20 @@ def drag_segment_input(chief_oe, t0_s, t1_s, tf_s, t_ref_s=0.0, n_quad=8, stm=st
 _LEGGAUSS_CACHE = {}
 
 
-def _leggauss(n):
+def gauss_legendre(n):
+    """Gauss-Legendre nodes and weights on [-1, 1] (``numpy.polynomial.legendre.leggauss``),
+    cached by ``n``.
+
+    Parameters
+    ----------
+    n : int
+        Number of nodes.
+
+    Returns
+    -------
+    x, w : np.ndarray, shape (n,)
+        Nodes and weights (shared by every caller: do not modify them).
+    """
     if n not in _LEGGAUSS_CACHE:
         _LEGGAUSS_CACHE[n] = np.polynomial.legendre.leggauss(n)
     return _LEGGAUSS_CACHE[n]

@@ -337,6 +337,24 @@ class GuidanceLaw(Protocol):
     A law is constructed with no arguments (``cls()``), then :meth:`setup` is called once and
     :meth:`step` at every guidance cycle. A law must not read any file or clock other than what
     it is given; it may keep state between calls.
+
+    Notes
+    -----
+    Optional method: a law may also define the method below (it is not part of the protocol's
+    ``isinstance`` check); the harness calls it only after :meth:`setup`.
+
+    ``believed_density_kgpm3(r_eci_m, t_s=None) -> np.ndarray``
+        The law's own atmospheric density belief at given positions, kg/m^3, which the harness
+        logs next to the truth density (for a law without the method it logs NaN: no belief).
+
+        Parameters: ``r_eci_m`` : np.ndarray, shape (K, 3), positions in covey's ECI (TOD), m;
+        ``t_s`` : np.ndarray, shape (K,), optional, their times, s since epoch (None when the
+        harness does not give them; a belief that depends on altitude only ignores them).
+
+        Returns: np.ndarray, shape (K,), density, kg/m^3.
+
+        The built-in laws answer with their :class:`guidance.density.DensityModel`
+        (:meth:`guidance.density.DensityModel.density_at_eci_kgpm3`).
     """
 
     def setup(self, mission: Mission) -> None:

@@ -56,7 +56,7 @@ from __future__ import annotations
 import numpy as np
 
 from .constants import J2, J3, MU_EARTH_M3PS2, R_EARTH_M
-from .roe import _solve_kepler, oe_to_rv, rv_to_oe, wrap_pi
+from .roe import oe_to_rv, rv_to_oe, solve_kepler, wrap_pi
 
 _TOL = 1e-13
 _MAX_ITER = 30
@@ -100,7 +100,7 @@ def _mean_to_osc(x, j2, j3, re):
     eta2 = 1.0 - e * e
     eta = np.sqrt(eta2)
     g2p = g2 / eta2**2
-    E = _solve_kepler(np.mod(M, 2 * np.pi), e)
+    E = solve_kepler(np.mod(M, 2 * np.pi), e)
     f = 2.0 * np.arctan2(np.sqrt(1 + e) * np.sin(E / 2), np.sqrt(1 - e) * np.cos(E / 2))
     aor = (1.0 + e * np.cos(f)) / eta2  # a / r
     c = np.cos(i)

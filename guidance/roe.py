@@ -78,7 +78,25 @@ def roe_to_oe(chief_oe, roe):
     return out
 
 
-def _solve_kepler(M, e, tol=1e-14, iters=30):
+def solve_kepler(M, e, tol=1e-14, iters=30):
+    """Eccentric anomaly from Kepler's equation ``E - e sin E = M`` by Newton iteration.
+
+    Parameters
+    ----------
+    M : array_like, shape (...)
+        Mean anomaly, rad.
+    e : array_like, shape (...) or scalar
+        Eccentricity, below 1.
+    tol : float
+        Stop when every Newton step is below this, rad.
+    iters : int
+        Largest number of Newton steps.
+
+    Returns
+    -------
+    np.ndarray, shape (...)
+        Eccentric anomaly, rad (starting from ``E = M``; not wrapped).
+    """
     E = np.array(M, dtype=float, copy=True)
     for _ in range(iters):
         f = E - e * np.sin(E) - M
@@ -150,7 +168,7 @@ def oe_to_rv(oe, mu=MU_EARTH_M3PS2):
     e = np.hypot(ex, ey)
     w = np.arctan2(ey, ex)
     M = u - w
-    E = _solve_kepler(M, e)
+    E = solve_kepler(M, e)
     nu = 2.0 * np.arctan2(np.sqrt(1 + e) * np.sin(E / 2), np.sqrt(1 - e) * np.cos(E / 2))
     p = a * (1 - e * e)
     rn = a * (1 - e * np.cos(E))

@@ -24,7 +24,6 @@ import numpy as np
 
 from ..density import DensityModel, differential_along_track_accel_mps2, relative_wind_speed_mps
 from ..constants import R_EARTH_M
-from ..dynamics import mean_motion
 from ..estimation import nav_to_mean
 from ..interface import (Diagnostics, GuidanceInputError, GuidanceOutput, Impulse, Mission,
                          ModeSwitch, NavSolution, SpacecraftCaps, SpacecraftCommand)
@@ -40,8 +39,26 @@ LOW_DRAG_MODE = "min_drag"
 # ------------------------------------------------------------------------------------------
 
 
-def _number(lo=None, hi=None, integer=False, unit=""):
-    """Checker for a finite number (optionally an integer) in [lo, hi]."""
+def setting_number(lo=None, hi=None, integer=False, unit=""):
+    """Checker of a setting that is a finite number (optionally an integer) in ``[lo, hi]``.
+
+    Parameters
+    ----------
+    lo, hi : float, optional
+        Bounds, inclusive (None: unbounded on that side), in the setting's unit.
+    integer : bool
+        Require a whole number (then the checked value is an int).
+    unit : str
+        Unit named in the error message.
+
+    Returns
+    -------
+    callable
+        ``check(key, value) -> float or int``: the value converted; raises
+        :class:`~guidance.interface.GuidanceInputError` naming ``key`` and the allowed range.
+        The checker of a settings table entry ``name -> (default, checker, description)``
+        (:func:`parse_settings`).
+    """
 
     def check(key, v):
         ok = isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool)
@@ -58,7 +75,16 @@ def _number(lo=None, hi=None, integer=False, unit=""):
     return check
 
 
-def _choice(*options):
+def setting_choice(*options):
+    """Checker of a setting that must be one of ``options`` (compared with ``in``).
+
+    Returns
+    -------
+    callable
+        ``check(key, value) -> value``; raises :class:`~guidance.interface.GuidanceInputError`
+        listing the options.
+    """
+
     def check(key, v):
         if v not in options:
             raise GuidanceInputError(key, v, "one of " + ", ".join(repr(o) for o in options))
@@ -67,13 +93,28 @@ def _choice(*options):
     return check
 
 
-def _string(key, v):
+def setting_string(key, v):
+    """Checker of a setting that is a non-empty string (an attitude mode name).
+
+    Returns
+    -------
+    str
+        ``v``; raises :class:`~guidance.interface.GuidanceInputError` naming ``key`` otherwise.
+    """
     if not isinstance(v, str) or not v:
         raise GuidanceInputError(key, v, "a non-empty string (an attitude mode name)")
     return v
 
 
-def _optional(check):
+def setting_optional(check):
+    """Checker that accepts None (returned as is) and checks anything else with ``check``.
+
+    Returns
+    -------
+    callable
+        ``check(key, value) -> None or the checked value``.
+    """
+
     def inner(key, v):
         return None if v is None else check(key, v)
 
@@ -81,31 +122,31 @@ def _optional(check):
 
 
 COMMON_SETTINGS: dict[str, tuple[Any, Callable, str]] = {
-    "burns_per_orbit": (8, _number(1, 720, integer=True), "candidate burn times per chief orbit"),
-    "segments_per_orbit": (4, _number(1, 360, integer=True), "drag segments per chief orbit"),
-    "chief_mode": ("nominal", _string, "attitude mode the chief holds"),
-    "hold_mode": (None, _optional(_string),
+    "burns_per_orbit": (8, setting_number(1, 720, integer=True), "candidate burn times per chief orbit"),
+    "segments_per_orbit": (4, setting_number(1, 360, integer=True), "drag segments per chief orbit"),
+    "chief_mode": ("nominal", setting_string, "attitude mode the chief holds"),
+    "hold_mode": (None, setting_optional(setting_string),
                   "mode a deputy holds when its drag is not planned and after its deadline "
                   "(default: chief_mode)"),
-    "min_dwell_s": (0.0, _number(0.0, unit="s"),
+    "min_dwell_s": (0.0, setting_number(0.0, unit="s"),
                     "shortest time in a mode; shorter high- or low-drag spells are removed "
                     "(the slew time is always a floor), s"),
-    "burn_margin_s": (60.0, _number(0.0, unit="s"),
+    "burn_margin_s": (60.0, setting_number(0.0, unit="s"),
                       "no new burn earlier than this after the solve time, s"),
-    "stm": ("j2", _choice(*STM_MODELS), "relative dynamics model of the planner"),
-    "predict_step_s": (None, _optional(_number(1.0, unit="s")),
+    "stm": ("j2", setting_choice(*STM_MODELS), "relative dynamics model of the planner"),
+    "predict_step_s": (None, setting_optional(setting_number(1.0, unit="s")),
                        "spacing of the predicted trajectory in the diagnostics (default: cycle), s"),
-    "optimality_gap": (1e-3, _number(1e-9, 0.1),
+    "optimality_gap": (1e-3, setting_number(1e-9, 0.1),
                        "relative optimality gap at which each plan's solve stops (a plan costs at "
                        "most this fraction more than the optimum; guidance.planning.plan_deputy "
                        "tol_rel)"),
-    "target_tol_m": (0.01, _number(0.0, unit="m"),
+    "target_tol_m": (0.01, setting_number(0.0, unit="m"),
                      "a plan missing the target by more (a-scaled ROE) is reported degraded, m"),
-    "density_model": ("exponential", _choice("exponential", "harris_priester"),
+    "density_model": ("exponential", setting_choice("exponential", "harris_priester"),
                       "guidance's density model (guidance.density)"),
-    "f107_forecast_sfu": (150.0, _number(50.0, 400.0, unit="sfu"), "forecast F10.7, sfu"),
-    "density_coefficient": (1.0, _number(1e-3, 1e3), "multiplies guidance's density estimate"),
-    "weak_drag_margin": (1.0, _number(0.01, 1.0),
+    "f107_forecast_sfu": (150.0, setting_number(50.0, 400.0, unit="sfu"), "forecast F10.7, sfu"),
+    "density_coefficient": (1.0, setting_number(1e-3, 1e3), "multiplies guidance's density estimate"),
+    "weak_drag_margin": (1.0, setting_number(0.01, 1.0),
                          "re-planning hybrid laws (hybrid_resolve): fraction of the believed "
                          "differential drag of the weaker drag mode (smaller |acceleration| against "
                          "the chief) the planner counts on; below 1 the plan keeps drag authority in "
@@ -240,6 +281,28 @@ class PlannerLaw:
 
     def _extra_setup(self) -> None:
         """Hook for subclasses (after the common set-up)."""
+
+    def believed_density_kgpm3(self, r_eci_m: np.ndarray, t_s: np.ndarray | None = None) -> np.ndarray:
+        """This law's density belief at given positions (its settings' density model), kg/m^3.
+
+        The optional method of :class:`guidance.interface.GuidanceLaw`, valid after :meth:`setup`.
+
+        Parameters
+        ----------
+        r_eci_m : np.ndarray, shape (K, 3)
+            Positions in covey's ECI (TOD), m.
+        t_s : np.ndarray, shape (K,), optional
+            Their times, s since epoch; ignored (the belief depends on altitude only).
+
+        Returns
+        -------
+        np.ndarray, shape (K,)
+            :meth:`guidance.density.DensityModel.density_at_eci_kgpm3` of the model built from
+            ``density_model``, ``f107_forecast_sfu`` and ``density_coefficient``, kg/m^3.
+        """
+        if self.density is None:
+            raise GuidanceInputError("setup", None, "call setup(mission) before believed_density_kgpm3()")
+        return self.density.density_at_eci_kgpm3(r_eci_m)
 
     # ---- per step -------------------------------------------------------------------------
     def _wants_plan(self, name: str, st: DeputyState, t_s: float, nav: NavSolution) -> bool:
@@ -511,16 +574,3 @@ def warm_directions(impulses) -> tuple:
     """``(t_s, unit direction)`` of every non-zero impulse ``(t_s, dv (3,))``: the starting columns
     (``PlanRequest.warm_columns``) a re-plan takes from impulses planned before."""
     return tuple((t, d / np.linalg.norm(d)) for t, d in impulses if np.linalg.norm(d) > 0)
-
-
-def settings_table(cls) -> str:
-    """Markdown table of a law's settings (name, default, description), for the docs."""
-    rows = ["| setting | default | meaning |", "| --- | --- | --- |"]
-    for k, (d, _c, doc) in cls.settings_spec().items():
-        rows.append(f"| `{k}` | `{d!r}` | {doc} |")
-    return "\n".join(rows)
-
-
-def mean_motion_of(a_m: float) -> float:
-    """Keplerian mean motion of a semi-major axis, rad/s (re-export for laws)."""
-    return float(mean_motion(a_m))

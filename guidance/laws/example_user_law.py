@@ -24,15 +24,15 @@ from ..dynamics import mean_motion
 from ..estimation import nav_to_mean
 from ..interface import (Diagnostics, GuidanceInputError, GuidanceOutput, Mission, ModeSwitch,
                          NavSolution, SpacecraftCommand)
-from .base import parse_settings, _number, _string, _choice
+from .base import parse_settings, setting_choice, setting_number, setting_string
 
 SETTINGS = {
-    "deadband_m": (10.0, _number(0.0, unit="m"), "along-track error (a-scaled) left uncorrected, m"),
-    "chief_mode": ("nominal", _string, "attitude mode the chief holds"),
-    "hold_mode": ("nominal", _string, "deputy mode inside the dead band"),
-    "density_model": ("exponential", _choice("exponential", "harris_priester"), "density model"),
-    "f107_forecast_sfu": (150.0, _number(50.0, 400.0, unit="sfu"), "forecast F10.7, sfu"),
-    "density_coefficient": (1.0, _number(1e-3, 1e3), "multiplies the density estimate"),
+    "deadband_m": (10.0, setting_number(0.0, unit="m"), "along-track error (a-scaled) left uncorrected, m"),
+    "chief_mode": ("nominal", setting_string, "attitude mode the chief holds"),
+    "hold_mode": ("nominal", setting_string, "deputy mode inside the dead band"),
+    "density_model": ("exponential", setting_choice("exponential", "harris_priester"), "density model"),
+    "f107_forecast_sfu": (150.0, setting_number(50.0, 400.0, unit="sfu"), "forecast F10.7, sfu"),
+    "density_coefficient": (1.0, setting_number(1e-3, 1e3), "multiplies the density estimate"),
 }
 
 
@@ -55,6 +55,11 @@ class DragBangBang:
                                      f"one of {sorted(mission.chief.drag_area_m2)}")
         self.mission = mission
         self.mode = {d.name: d.initial_mode for d in mission.deputies}
+
+    def believed_density_kgpm3(self, r_eci_m: np.ndarray, t_s: np.ndarray | None = None) -> np.ndarray:
+        """The law's density belief at positions ``r_eci_m`` (K, 3) in ECI (TOD), m -> (K,) kg/m^3
+        (the optional method of guidance.interface.GuidanceLaw; ``t_s`` (K,) is ignored)."""
+        return self.density.density_at_eci_kgpm3(r_eci_m)
 
     def step(self, t_s: float, nav: NavSolution) -> GuidanceOutput:
         try:

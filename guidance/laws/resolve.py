@@ -21,7 +21,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .base import PlannerLaw, _choice, _number, _optional, warm_directions
+from .base import PlannerLaw, setting_choice, setting_number, setting_optional, warm_directions
 from ..planning import PlanRequest
 
 
@@ -32,13 +32,13 @@ class HybridResolve(PlannerLaw):
     PLAN_DRAG = True
     REPLANS = True
     EXTRA_SETTINGS = {
-        "resolve_s": (None, _optional(_number(1.0, unit="s")),
+        "resolve_s": (None, setting_optional(setting_number(1.0, unit="s")),
                       "re-solve cadence (default: the guidance cycle), s"),
-        "resolve_mode": ("drag_and_impulses", _choice("drag_and_impulses", "drag_only"),
+        "resolve_mode": ("drag_and_impulses", setting_choice("drag_and_impulses", "drag_only"),
                          "what a re-solve may change"),
-        "freeze_s": (None, _optional(_number(0.0, unit="s")),
+        "freeze_s": (None, setting_optional(setting_number(0.0, unit="s")),
                      "no re-solve closer than this to the deadline (default: one chief orbit), s"),
-        "miss_weight_mps_per_m": (1.0, _number(1e-9, unit="m/s per m"),
+        "miss_weight_mps_per_m": (1.0, setting_number(1e-9, unit="m/s per m"),
                                   "drag_only: price of a target miss per a-scaled metre"),
     }
 

@@ -274,12 +274,9 @@ class ClosedLoopEngine(Engine):
         except Exception as exc:  # noqa: BLE001
             raise GuidanceFailure(self.law_name, 0.0, f"setup() raised {type(exc).__name__}: "
                                   + " ".join(str(exc).split())) from exc
-        try:  # guidance's own density belief, logged next to the truth density
-            from guidance.density import DensityModel
-
-            self.belief = DensityModel.from_settings(self.mission.settings)
-        except Exception:  # noqa: BLE001 - a law without density settings
-            self.belief = None
+        # guidance's own density belief, logged next to the truth density: the law reports it
+        # (optional GuidanceLaw method; a law without it has no belief, logged as NaN)
+        self.belief = getattr(self.law, "believed_density_kgpm3", None)
 
     # -- the cycle ---------------------------------------------------------------------------
     def plan(self, t_s: float, t_next_s: float) -> None:
@@ -394,13 +391,11 @@ class ClosedLoopEngine(Engine):
                 units={"area_factor": "1"})
 
     def believed_density(self, r_eci_m: np.ndarray) -> np.ndarray:
-        """Guidance's density belief at the given positions (its own model), kg/m^3."""
+        """Guidance's density belief at the given positions (K, 3), ECI, m, as the law reports it
+        (``law.believed_density_kgpm3``), kg/m^3; NaN for a law without that method."""
         if self.belief is None:
             return np.full(len(r_eci_m), np.nan)
-        from guidance.constants import R_EARTH_M
-
-        alt = np.linalg.norm(np.asarray(r_eci_m, float), axis=1) - R_EARTH_M
-        return np.asarray(self.belief.density_kgpm3(alt), float)
+        return np.asarray(self.belief(np.asarray(r_eci_m, float)), float)
 
     def finish(self) -> None:
         """Empty tables for groups a log always has, and the believed density."""

@@ -21,6 +21,7 @@ import numpy as np
 import pytest
 
 from guidance.constants import R_EARTH_M
+from guidance.density import DensityModel
 from guidance.interface import (AbsoluteEstimate, DeputyTarget, Diagnostics, GuidanceInputError,
                                 GuidanceLaw, GuidanceOutput, Impulse, Mission, ModeSwitch,
                                 NavSolution, RelativeEstimate, SpacecraftCaps, SpacecraftCommand,
@@ -163,6 +164,26 @@ def test_resolve_law_settings():
     law.setup(mission({"resolve_s": 10800.0, "resolve_mode": "drag_only", "freeze_s": 5400.0,
                        "density_coefficient": 1.3}))
     assert law.settings["resolve_s"] == 10800.0 and law.density.density_coefficient == 1.3
+
+
+@pytest.mark.parametrize("name", sorted(LAWS))
+@pytest.mark.parametrize("settings", [{}, {"density_model": "harris_priester"},
+                                      {"f107_forecast_sfu": 90, "density_coefficient": 2.5}])
+def test_law_reports_the_density_belief_of_its_settings(name, settings):
+    """The optional GuidanceLaw method believed_density_kgpm3 gives exactly (bit for bit) what the
+    harness used to compute from the law's settings: guidance.density.DensityModel.from_settings
+    at the altitude |r| - R_EARTH_M."""
+    law = load_law(name)
+    law.setup(mission(dict(settings)))
+    r = np.array([[R_EARTH_M + 480e3, 0.0, 0.0], [0.0, -(R_EARTH_M + 500e3), 1e3],
+                  [4e6, 4e6, 3.5e6], [0.0, 0.0, R_EARTH_M + 620.5e3]])
+    t = np.arange(4) * 60.0
+    expected = np.asarray(DensityModel.from_settings(settings).density_kgpm3(
+        np.linalg.norm(r, axis=1) - R_EARTH_M), float)
+    got = law.believed_density_kgpm3(r, t)
+    assert got.shape == (4,) and got.dtype == float
+    assert np.array_equal(got, expected)
+    assert np.array_equal(law.believed_density_kgpm3(r), expected)
 
 
 def test_deadline_in_the_past_gives_infeasible_status_and_held_commands():
