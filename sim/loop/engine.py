@@ -415,4 +415,4 @@ class ClosedLoopEngine(Engine):
             if p in f:
                 self.rec.write_dataset(f"spacecraft/{n}/believed_density_kgpm3",
                                        self.believed_density(f[p][...]), units="kg/m^3",
-                                       source="guidance.density.DensityModel from the law's settings")
+                                       source="the guidance law's believed_density_kgpm3")

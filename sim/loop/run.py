@@ -29,7 +29,7 @@ from sim.log.recorder import RunRecorder
 from sim.loop.engine import MEAN_OE_NAMES, ClosedLoopEngine, Engine, ProgressFn
 from sim.loop.options import RunOptions, frozen_heap
 from sim.scenario.config import RunConfig
-from sim.scenario.reader import resolve_orekit_data
+from sim.orekit.data import resolve_orekit_data
 
 __all__ = ["RunSummary", "run_scenario", "truth_backend", "git_commit", "MEAN_OE_NAMES"]
 
@@ -148,7 +148,7 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     """
     out = Path(out_path)
     opts = options if options is not None else RunOptions()
-    data_path, label = resolve_orekit_data(orekit_data, cfg.orekit_data)
+    data = resolve_orekit_data(orekit_data, cfg.orekit_data)
     try:
         rec = RunRecorder(out)
     except OSError as exc:
@@ -166,10 +166,9 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     engine: Engine | None = None
     status, reason, tb, error = "failed", "", "", None
     try:
-        write_start_meta(rec, cfg, data_path, label, opts)
+        write_start_meta(rec, cfg, data.user_path, data.label, opts)
         api = truth_backend()
-        # boot() reads COVEY_OREKIT_DATA itself (and then records that as the data source)
-        info = api.boot(None if label == "COVEY_OREKIT_DATA" else data_path)
+        info = api.boot(data)
         write_boot_meta(rec, info)
         world = api.TruthWorld(cfg, info, batched_density=opts.batched_density,
                               java_sampler=opts.java_sampler, threads=opts.truth_threads)

@@ -34,7 +34,7 @@ while a mode is held is the nominal one times
 - ``attitude_factor``: an attitude pointing error drawn at each switch (a small rotation with three
   independent components of 1-sigma ``attitude_sigma_deg`` about the VNC axes, held until the next
   switch). For box geometry it is the ratio of the box-and-panels area projected along the velocity
-  with and without the error (:func:`projected_area_m2`); for table geometry, where no shape is
+  with and without the error (:func:`sim.models.geometry.mode_area_m2`); for table geometry, where no shape is
   known, it is the cosine of the angle between the perturbed and nominal ram axes (a flat face
   turned away from the flow).
 
@@ -56,8 +56,9 @@ import numpy as np
 
 from guidance.interface import GuidanceInputError, Impulse, ModeSwitch
 
-from sim.scenario.config import ActuatorConfig, BusConfig, GeometryConfig
+from sim.scenario.config import ActuatorConfig, BusConfig
 from sim.errors import ScenarioError
+from sim.models.geometry import error_rotation, mode_area_m2
 from sim.models.noise import stream
 
 __all__ = [
@@ -65,9 +66,6 @@ __all__ = [
     "ExecutedImpulse",
     "ExecutedSwitch",
     "ActuatorModel",
-    "projected_area_m2",
-    "mode_rotation",
-    "rotation_from_vector",
     "REALISTIC_ACTUATORS",
 ]
 
@@ -159,93 +157,6 @@ class ExecutedSwitch:
     drag_area_factor: float = 1.0
     attitude_factor: float = 1.0
     attitude_error_rad: np.ndarray = field(default_factory=lambda: np.zeros(3))
-
-
-# ------------------------------------------------------------------------------------------
-# Geometry (numpy)
-# ------------------------------------------------------------------------------------------
-
-
-def _rx(a):
-    c, s = math.cos(a), math.sin(a)
-    return np.array([[1, 0, 0], [0, c, -s], [0, s, c]])
-
-
-def _ry(a):
-    c, s = math.cos(a), math.sin(a)
-    return np.array([[c, 0, s], [0, 1, 0], [-s, 0, c]])
-
-
-def _rz(a):
-    c, s = math.cos(a), math.sin(a)
-    return np.array([[c, -s, 0], [s, c, 0], [0, 0, 1]])
-
-
-def mode_rotation(rotation_xyz_deg) -> np.ndarray:
-    """Body axes of an attitude mode in VNC coordinates.
-
-    Parameters
-    ----------
-    rotation_xyz_deg : (float, float, float)
-        Successive rotations of the frame about X, then the new Y, then the new Z, deg
-        (:class:`sim.scenario.config.AttitudeModeConfig`; the same as Orekit's ``LofOffset`` with
-        ``RotationOrder.XYZ``).
-
-    Returns
-    -------
-    np.ndarray, shape (3, 3)
-        ``V = Rx(a1) Ry(a2) Rz(a3)``: column j is body axis j in VNC; a VNC vector ``u`` has body
-        coordinates ``V.T @ u``.
-    """
-    a1, a2, a3 = (math.radians(float(x)) for x in rotation_xyz_deg)
-    return _rx(a1) @ _ry(a2) @ _rz(a3)
-
-
-def rotation_from_vector(rotvec) -> np.ndarray:
-    """Rotation matrix of a rotation vector (axis times angle, rad), Rodrigues' formula."""
-    w = np.asarray(rotvec, dtype=float)
-    th = float(np.linalg.norm(w))
-    if th == 0.0:
-        return np.eye(3)
-    k = w / th
-    kx = np.array([[0, -k[2], k[1]], [k[2], 0, -k[0]], [-k[1], k[0], 0]])
-    return np.eye(3) + math.sin(th) * kx + (1 - math.cos(th)) * (kx @ kx)
-
-
-def projected_area_m2(geometry: GeometryConfig, rotation_xyz_deg, error_rotvec_rad=(0.0, 0.0, 0.0)) -> float:
-    """Area of a box-and-panels spacecraft projected along its velocity, m^2.
-
-    Same geometry and mode convention as ``sim.models.geometry`` (ram-facing area of a mode), with an
-    optional attitude error on top; a test checks the two agree.
-
-    Parameters
-    ----------
-    geometry : sim.scenario.config.GeometryConfig
-        ``kind = "box"``: box sides ``box_x_m, box_y_m, box_z_m`` (body axes) and flat ``panels``.
-    rotation_xyz_deg : (float, float, float)
-        The attitude mode (see :func:`mode_rotation`).
-    error_rotvec_rad : array_like, shape (3,)
-        Attitude pointing error, a rotation vector about the VNC axes applied after the mode
-        rotation (body axes in VNC become ``R(error) V``).
-
-    Returns
-    -------
-    float
-        ``sum over faces of A_face |n_face . d|`` for the box (each opposite pair seen once), plus
-        ``A |n . d|`` for a double-sided panel and ``A max(0, n . d)`` for a one-sided one, with
-        ``d`` the velocity direction in body axes.
-    """
-    if geometry.kind != "box":
-        raise ValueError(f"projected_area_m2 needs a box geometry, got kind = {geometry.kind!r}")
-    m = rotation_from_vector(error_rotvec_rad) @ mode_rotation(rotation_xyz_deg)
-    d = m.T @ np.array([1.0, 0.0, 0.0])
-    x, y, z = geometry.box_x_m, geometry.box_y_m, geometry.box_z_m
-    area = y * z * abs(d[0]) + x * z * abs(d[1]) + x * y * abs(d[2])
-    for p in geometry.panels:
-        n = np.asarray(p.normal_body, dtype=float)
-        c = float(n @ d) / float(np.linalg.norm(n))
-        area += p.area_m2 * (abs(c) if p.double_sided else max(0.0, c))
-    return float(area)
 
 
 # ------------------------------------------------------------------------------------------
@@ -470,11 +381,11 @@ class ActuatorModel:
         bus = self.buses[name]
         if bus.geometry.kind == "box":
             rot = bus.modes[mode].rotation_xyz_deg if mode in bus.modes else (0.0, 0.0, 0.0)
-            a0 = projected_area_m2(bus.geometry, rot)
-            a1 = projected_area_m2(bus.geometry, rot, eps)
+            a0 = mode_area_m2(bus.geometry, rot)
+            a1 = mode_area_m2(bus.geometry, rot, eps)
             return (a1 / a0 if a0 > 0 else 1.0), eps
         # table: cosine of the tilt of the ram axis, e_x . R(eps) e_x
-        return float(rotation_from_vector(eps)[0, 0]), eps
+        return float(error_rotation(eps)[0, 0]), eps
 
     def _check_mode(self, name: str, mode, key: str) -> str:
         allowed = self.modes(name)

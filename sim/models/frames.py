@@ -46,7 +46,8 @@ def rtn_columns(r_eci_m, v_eci_mps) -> np.ndarray:
 
     Shapes as :func:`rtn_rows` (the transpose of it).
     """
-    return np.swapaxes(rtn_rows(r_eci_m, v_eci_mps), -1, -2)
+    # a C-contiguous copy: matrix products with it then round as they did with column_stack
+    return np.ascontiguousarray(np.swapaxes(rtn_rows(r_eci_m, v_eci_mps), -1, -2))
 
 
 def relative_rtn(r_chief_eci_m, v_chief_eci_mps, x_eci) -> np.ndarray:

@@ -19,9 +19,13 @@ from __future__ import annotations
 from typing import Mapping
 
 import numpy as np
+from scipy.spatial.transform import Rotation
 
-from sim.scenario.config import BusConfig, GeometryConfig
 from sim.errors import ScenarioError
+from sim.scenario.config import BusConfig, GeometryConfig
+
+__all__ = ["rotation_vnc_to_body", "error_rotation", "velocity_direction_body", "projected_area_m2",
+           "mode_area_m2", "mean_projected_area_m2", "mode_names", "mode_areas_m2", "srp_area_m2"]
 
 
 def rotation_vnc_to_body(rotation_xyz_deg) -> np.ndarray:
@@ -45,9 +49,22 @@ def rotation_vnc_to_body(rotation_xyz_deg) -> np.ndarray:
     return rx @ ry @ rz
 
 
-def velocity_direction_body(rotation_xyz_deg) -> np.ndarray:
-    """Unit velocity direction (VNC +X) in body axes for a mode's rotation, shape (3,)."""
-    return rotation_vnc_to_body(rotation_xyz_deg).T @ np.array([1.0, 0.0, 0.0])
+def error_rotation(error_rotvec_rad) -> np.ndarray:
+    """The (3, 3) matrix of an attitude error given as a rotation vector (axis times angle, rad,
+    about the VNC axes), by ``scipy.spatial.transform.Rotation.from_rotvec``."""
+    return Rotation.from_rotvec(np.asarray(error_rotvec_rad, dtype=float)).as_matrix()
+
+
+def velocity_direction_body(rotation_xyz_deg, error_rotvec_rad=None) -> np.ndarray:
+    """Unit velocity direction (VNC +X) in body axes for a mode's rotation, shape (3,).
+
+    ``error_rotvec_rad`` (3,), optional: an attitude pointing error applied after the mode
+    rotation (body axes in VNC become ``R(error) M``).
+    """
+    m = rotation_vnc_to_body(rotation_xyz_deg)
+    if error_rotvec_rad is not None and np.any(np.asarray(error_rotvec_rad, dtype=float) != 0.0):
+        m = error_rotation(error_rotvec_rad) @ m
+    return m.T @ np.array([1.0, 0.0, 0.0])
 
 
 def projected_area_m2(geometry: GeometryConfig, direction_body) -> float:
@@ -70,6 +87,14 @@ def projected_area_m2(geometry: GeometryConfig, direction_body) -> float:
         c = float(n @ d)
         area += p.area_m2 * (abs(c) if p.double_sided else max(0.0, c))
     return float(area)
+
+
+def mode_area_m2(geometry: GeometryConfig, rotation_xyz_deg, error_rotvec_rad=None) -> float:
+    """Ram-facing area of a ``"box"`` geometry in an attitude mode, with an optional attitude
+    error (rotation vector about the VNC axes, rad), m^2."""
+    if geometry.kind != "box":
+        raise ValueError(f"mode_area_m2 needs a box geometry, got kind = {geometry.kind!r}")
+    return projected_area_m2(geometry, velocity_direction_body(rotation_xyz_deg, error_rotvec_rad))
 
 
 def mean_projected_area_m2(geometry: GeometryConfig) -> float:

