@@ -14,9 +14,11 @@ import io
 import numpy as np
 import pytest
 
+import sim.cli.demo
 import sim.cli.main
 import sim.scenario.reader
-from sim.cli.main import _Progress, main
+from sim.cli.common import Progress as _Progress
+from sim.cli.main import main
 from sim.log.reader import read_log
 
 
@@ -139,7 +141,7 @@ def test_covey_demo_short_end_to_end(tmp_path, monkeypatch, capsys):
     log = read_log(path)
     assert log.status == "ok" and log.meta["orekit_version"] not in ("", "unknown")
     assert log.meta["java_version"] and len(log.get("meta/data_files/path")) > 0
-    cfg = sim.scenario.reader.load_scenario(sim.cli.main.demo_scenario_path())
+    cfg = sim.scenario.reader.load_scenario(sim.cli.demo.demo_scenario_path())
     for sc in cfg.spacecraft:
         tr = log[f"spacecraft/{sc.name}/truth"]
         t = tr.t_s

@@ -655,7 +655,7 @@ def jvm_runs(tmp_path_factory):
     import subprocess
     import sys
 
-    from sim.cli.main import _parse_set
+    from sim.cli.common import parse_set as _parse_set
 
     scen = REPO / "scenarios" / "demo_formation.toml"
     d = tmp_path_factory.mktemp("jvm")

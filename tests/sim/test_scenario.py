@@ -18,7 +18,8 @@ import zipfile
 
 import pytest
 
-from sim.cli.main import demo_scenario_path, main
+from sim.cli.demo import demo_scenario_path
+from sim.cli.main import main
 from sim.scenario.config import RunConfig
 from sim.errors import EnvironmentSetupError, ScenarioError
 from sim.scenario.reader import (
