@@ -37,12 +37,12 @@ matters for drag planning, and it is captured.
 
 from __future__ import annotations
 
-import math
 from typing import Any, Mapping
 
 import numpy as np
 
 from .constants import MU_EARTH_M3PS2, OMEGA_EARTH_RADPS, R_EARTH_M
+from .settings import check_number
 from .interface import GuidanceInputError, SpacecraftCaps
 
 DENSITY_MODELS = ("exponential", "harris_priester")
@@ -225,13 +225,10 @@ def _check_model(model):
 
 
 def _check_range(key, value, bounds, unit):
-    ok = isinstance(value, (int, float, np.floating, np.integer)) and not isinstance(value, bool)
-    if ok:
-        value = float(value)
-        ok = math.isfinite(value) and bounds[0] <= value <= bounds[1]
-    if not ok:
-        raise GuidanceInputError(key, value, f"a number from {bounds[0]:g} to {bounds[1]:g} {unit}")
-    return value
+    try:
+        return check_number(value, lo=bounds[0], hi=bounds[1], unit=unit)
+    except ValueError as exc:
+        raise GuidanceInputError(key, value, str(exc)) from None
 
 
 def relative_wind_speed_mps(a_m, i_rad, mu=MU_EARTH_M3PS2):

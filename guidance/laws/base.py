@@ -25,6 +25,7 @@ import numpy as np
 from ..density import DensityModel, differential_along_track_accel_mps2, relative_wind_speed_mps
 from ..constants import R_EARTH_M
 from ..estimation import nav_to_mean
+from ..settings import check_number
 from ..interface import (Diagnostics, GuidanceInputError, GuidanceOutput, Impulse, Mission,
                          ModeSwitch, NavSolution, SpacecraftCaps, SpacecraftCommand)
 from ..planning import (STM_MODELS, Plan, PlanRequest, burn_grid, chief_period_s, plan_deputy,
@@ -61,16 +62,10 @@ def setting_number(lo=None, hi=None, integer=False, unit=""):
     """
 
     def check(key, v):
-        ok = isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, bool)
-        if ok:
-            ok = math.isfinite(float(v)) and (not integer or float(v).is_integer())
-            ok = ok and (lo is None or float(v) >= lo) and (hi is None or float(v) <= hi)
-        if not ok:
-            kind = "an integer" if integer else "a number"
-            rng = f" from {lo:g}" if lo is not None else ""
-            rng += f" to {hi:g}" if hi is not None else (" or more" if lo is not None else "")
-            raise GuidanceInputError(key, v, f"{kind}{rng}{' ' + unit if unit else ''}")
-        return int(v) if integer else float(v)
+        try:
+            return check_number(v, lo=lo, hi=hi, integer=integer, unit=unit, whole_float_ok=True)
+        except ValueError as exc:
+            raise GuidanceInputError(key, v, str(exc)) from None
 
     return check
 

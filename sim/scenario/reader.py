@@ -60,6 +60,7 @@ from sim.scenario.config import (
     SpacecraftConfig,
     ThrusterConfig,
 )
+from guidance.settings import check_number, range_text, type_name
 from sim.errors import EnvironmentSetupError, ScenarioError
 from sim.orekit.data import parse_epoch, resolve_orekit_data, solar_activity_span
 
@@ -113,36 +114,12 @@ def _unit_of(key: str) -> str:
 # ------------------------------------------------------------------------------------------
 
 
-def _type_name(v: Any) -> str:
-    if isinstance(v, bool):
-        return "a boolean"
-    if isinstance(v, (int, float)):
-        return "a number"
-    if isinstance(v, str):
-        return "a string"
-    if isinstance(v, list):
-        return "an array"
-    if isinstance(v, dict):
-        return "a table"
-    return type(v).__name__
-
-
-def _range_text(lo, hi, lo_open, hi_open) -> str:
-    if lo is not None and hi is not None:
-        return f"in {'(' if lo_open else '['}{lo:g}, {hi:g}{')' if hi_open else ']'}"
-    if lo is not None:
-        return f"{'>' if lo_open else '>='} {lo:g}"
-    if hi is not None:
-        return f"{'<' if hi_open else '<='} {hi:g}"
-    return ""
-
-
 class _Table:
     """One TOML table being read: knows its key path, refuses unknown keys up front."""
 
     def __init__(self, data: Any, path: str, allowed: Sequence[str], src: str, open_keys=False):
         if not isinstance(data, dict):
-            raise ScenarioError(path, data, f"must be a table, got {_type_name(data)}", path=src)
+            raise ScenarioError(path, data, f"must be a table, got {type_name(data)}", path=src)
         self.d, self.path, self.src = data, path, src
         if not open_keys:
             for k in data:
@@ -173,7 +150,7 @@ class _Table:
     def num(self, k, default=_MISSING, *, lo=None, hi=None, lo_open=False, hi_open=False,
             integer=False, unit=None) -> Any:
         unit = _unit_of(k) if unit is None else unit
-        rng = _range_text(lo, hi, lo_open, hi_open)
+        rng = range_text(lo, hi, lo_open, hi_open)
         what = f"{'an integer' if integer else 'a number'}{' ' + rng if rng else ''}"
         what += f" ({unit})" if unit else ""
         v = self._get(k, default, what)
@@ -187,7 +164,7 @@ class _Table:
         if v is _MISSING:
             return default
         if not isinstance(v, bool):
-            raise self.err(k, v, f"must be true or false, got {_type_name(v)}")
+            raise self.err(k, v, f"must be true or false, got {type_name(v)}")
         return v
 
     def string(self, k, default=_MISSING, *, choices=None, pattern=None, what="a string") -> Any:
@@ -197,7 +174,7 @@ class _Table:
         if v is _MISSING:
             return default
         if not isinstance(v, str):
-            raise self.err(k, v, f"must be {what}, got {_type_name(v)}")
+            raise self.err(k, v, f"must be {what}, got {type_name(v)}")
         if choices and v not in choices:
             close = difflib.get_close_matches(v, list(choices), n=1, cutoff=0.5)
             raise self.err(k, v, f"must be {what}", f"did you mean {close[0]!r}?" if close else "")
@@ -208,7 +185,7 @@ class _Table:
     def vec(self, k, n, default=_MISSING, *, lo=None, hi=None, lo_open=False, scalar_ok=False,
             unit=None) -> Any:
         unit = _unit_of(k) if unit is None else unit
-        rng = _range_text(lo, hi, lo_open, False)
+        rng = range_text(lo, hi, lo_open, False)
         what = f"an array of {n} numbers{' ' + rng if rng else ''}{f' ({unit})' if unit else ''}"
         if scalar_ok:
             what += " or one number for all"
@@ -243,17 +220,11 @@ class _Table:
 
 
 def _check_num(v, what, lo, hi, lo_open, hi_open, integer, err):
-    if isinstance(v, bool) or not isinstance(v, (int, float)):
-        raise err(v, f"must be {what}, got {_type_name(v)}")
-    if integer and not isinstance(v, int):
-        raise err(v, f"must be {what}")
-    if not math.isfinite(v):
-        raise err(v, f"must be {what} (finite)")
-    if lo is not None and (v < lo or (lo_open and v == lo)):
-        raise err(v, f"must be {what}")
-    if hi is not None and (v > hi or (hi_open and v == hi)):
-        raise err(v, f"must be {what}")
-    return v if integer else float(v)
+    try:
+        return check_number(v, lo=lo, hi=hi, lo_open=lo_open, hi_open=hi_open, integer=integer,
+                            what=what)
+    except ValueError as exc:
+        raise err(v, str(exc)) from None
 
 
 # ------------------------------------------------------------------------------------------
@@ -499,7 +470,7 @@ def _epoch(run: _Table) -> str:
         except ValueError:
             raise run.err("epoch_utc", v, f"must be {what}") from None
     else:
-        raise run.err("epoch_utc", v, f"must be {what}, got {_type_name(v)}")
+        raise run.err("epoch_utc", v, f"must be {what}, got {type_name(v)}")
     if dt.tzinfo is not None:
         dt = dt.astimezone(_dt.timezone.utc).replace(tzinfo=None)
     if not 1900 <= dt.year <= 2200:
