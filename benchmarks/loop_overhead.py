@@ -17,7 +17,7 @@ drag area; the attitude-mode switches commanded by guidance are not in it), the 
 cap ``MAX_STEP_S``, initial step set), and ONE ``propagate()`` per spacecraft over the whole
 duration: no step handler, no event detector, no guidance.
 
-Both are warmed up first (the JIT needs several simulated days, DEVELOPERS.md ``truth``). The bare
+Both are warmed up first (the JIT needs several simulated days, benchmarks/RESULTS.md [orekit]). The bare
 propagation is timed before and after the closed loop; the ratio is closed loop / mean of the two.
 The breakdown times covey's own functions from outside (wrappers installed by this script, not by
 covey): truth propagation (``TruthWorld.advance_to``; the step handler's own Python time is shown
@@ -44,7 +44,7 @@ machine's speed drifts by tens of per cent within minutes, and one ratio is one 
 
 ``--no-early-start`` turns off :meth:`sim.truth.world.TruthWorld.start_early` (the chief's segment run
 while the law works) to price it: it saves the chief's propagation from the critical path but
-slows the law's Python while a Java propagation runs beside it (DEVELOPERS.md, closed-loop cost).
+slows the law's Python while a Java propagation runs beside it (benchmarks/RESULTS.md [two-threads]).
 """
 
 from __future__ import annotations

@@ -76,7 +76,7 @@ _CHUNK = 65536  # draws per block when a process has to skip many epochs
 
 
 # ------------------------------------------------------------------------------------------
-# Realistic defaults (documented in DEVELOPERS.md, section nav-actuators)
+# Realistic defaults (the sources of each number beside it)
 # ------------------------------------------------------------------------------------------
 
 #: Absolute navigation of a small-satellite GNSS receiver: per axis 1-sigma 1.5 m position
@@ -95,8 +95,8 @@ REALISTIC_ABSOLUTE = NavErrorConfig(
 
 #: Relative navigation by carrier-phase differential GNSS: per axis 1.15 cm position (3D 2.0 cm)
 #: and 0.25 mm/s velocity (3D 0.43 mm/s), after the hardware-in-the-loop figures "about 2 cm position
-#: and below 0.5 mm/s velocity" (Ferguson, Busse, How, "Navigation performance predictions for the
-#: Orion formation flying mission", MIT Space Systems Laboratory, c. 2001) and "about 1 cm, 0.5 mm/s"
+#: and below 0.5 mm/s velocity" (Ferguson, Busse, How, a formation-flying navigation performance
+#: prediction study, technical report, c. 2001) and "about 1 cm, 0.5 mm/s"
 #: (Busse, How, "Real-time experimental demonstration of precise decentralized relative navigation
 #: for formation flying spacecraft", AIAA GNC 2002). The split and the 10 min correlation time are
 #: common practice, no source.

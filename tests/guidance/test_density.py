@@ -69,8 +69,7 @@ def _msis_global_mean(alt_km, f107):
 def test_against_nrlmsise00_at_400_and_500_km(model, f107):
     # Globe- and day-averaged NRLMSISE-00 at equinox, Ap 4. Tolerance a factor 1.5: an
     # altitude-only model cannot follow the day/night bulge (a factor 2-3 at 400-500 km), and
-    # 15-20 % 1-sigma is the error of empirical models themselves (Bowman et al., AIAA 2008-6438,
-    # check-values.md). Measured ratios (exponential) 0.81-0.91 at 150 sfu. Note: the flux exponent
+    # 15-20 % 1-sigma is the error of empirical models themselves (Bowman et al., AIAA 2008-6438). Measured ratios (exponential) 0.81-0.91 at 150 sfu. Note: the flux exponent
     # p(h) was calibrated on these same averages (scripts/calibrate_density_flux.py); the level at
     # 150 sfu comes from the published tables, independent of NRLMSISE-00.
     alt_km = np.array([400.0, 500.0])

@@ -5,12 +5,13 @@ Sources beside each check:
   (argument of perigee 3/4 n J2 (Re/a)^2 (5 cos^2 i - 1)/(1-e^2)^2, RAAN -3/2 n J2 (Re/a)^2 cos i
   /(1-e^2)^2, mean anomaly n [1 + 3/4 J2 (Re/p)^2 sqrt(1-e^2) (3 cos^2 i - 1)]) [memory for the
   section];
-- 500 km SSO check values [derived] in /work/shared/check-values.md;
+- 500 km SSO check values [derived] from Koenig et al., JGCD 40(7), 2017, eqs. 14-16 with
+  a = Re + 500 km, e = 0, i = 97.4 deg;
 - impulsive input matrix: Gauss variational equations for near-circular orbits (Gaias et al.,
   JGCD 38(6), 2015), checked against a two-body impulse on the Cartesian state;
 - drag: closed forms derived below from the same Gauss equations; orbit decay rate
   da/dt = -rho sqrt(mu a) Cd A/m and decay per revolution 2 pi (Cd A/m) rho a^2 (Vallado, drag
-  section [memory]; check-values.md).
+  section [memory]).
 """
 
 from __future__ import annotations
@@ -74,7 +75,7 @@ def test_secular_rates_equal_closed_form(chief):
 
 
 def test_sso_500km_check_values():
-    # check-values.md [derived]: n = 1.10678e-3 rad/s, kappa = 7.7277e-7 rad/s, e-vector rotation
+    # [derived] from Koenig et al. 2017 eqs. 14-16: n = 1.10678e-3 rad/s, kappa = 7.7277e-7 rad/s, e-vector rotation
     # -3.508 deg/day, RAAN +0.9854 deg/day, Phi21/tau = -1.65503e-3 1/s, a*dix = 100 m makes
     # a*diy drift 13.13 m/day.
     c = j2_coefficients(SSO500)
@@ -235,9 +236,9 @@ def test_drag_segment_j2_against_adaptive_quadrature():
 
 def test_drag_decay_rate_matches_textbook():
     # Differential da rate of a deputy with more drag equals the textbook decay rate difference
-    # da/dt = -rho sqrt(mu a) (B_dep - B_chief) (Vallado [memory]; check-values.md), and per
+    # da/dt = -rho sqrt(mu a) (B_dep - B_chief) (Vallado [memory]), and per
     # revolution 2 pi dB rho a^2: with rho 5e-13 kg/m^3 at 500 km, Cd 2.2, 4 kg, areas 0.01 and
-    # 0.034 m^2 [derived: check-values.md quotes 0.82 and 2.78 m/rev decay].
+    # 0.034 m^2 [derived from the same formula: 0.82 and 2.78 m/rev decay].
     from guidance.density import differential_along_track_accel_mps2
 
     a = R_EARTH_M + 500e3

@@ -308,7 +308,7 @@ def test_example_law_drives_the_along_track_error_the_right_way():
 def test_weak_drag_margin_scales_only_the_weaker_mode_of_the_plan():
     # The planner's drag bounds with weak_drag_margin = 0.5 against the same law with 1.0: the mode
     # with the smaller |differential acceleration| (here min_drag against a nominal chief) is
-    # counted at half, the other is unchanged (DEVELOPERS.md, guidance-laws settings).
+    # counted at half, the other is unchanged (DEVELOPERS.md, The built-in laws).
     # A law that plans once accepts the setting and ignores it.
     def request(name, k):
         law = load_law(name)

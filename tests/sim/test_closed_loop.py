@@ -700,14 +700,14 @@ def test_same_scenario_and_seed_give_identical_logs(jvm_runs):
 @pytest.mark.orekit
 def test_truth_flies_the_logged_switches_and_burns(jvm_runs):
     """mode_index follows every executed switch from its start, the drag area changes at the slew
-    midpoint to the mode's nominal area times the logged realised factor (DEVELOPERS.md, truth:
+    midpoint to the mode's nominal area times the logged realised factor (DEVELOPERS.md, The truth world:
     'mode_index is the commanded mode (changes at t), drag_area_m2 the area in effect (changes at
     t + slew/2)'), and the burns the truth executed (/maneuvers) are the logged executed ones."""
     from sim.models.noise import stream
 
     cfg, p, summary = jvm_runs
     log = read_log(p["B"])
-    # the log says how its truth samples and density were made (defaults: DEVELOPERS.md truth)
+    # the log says how its truth samples and density were made (defaults: RunOptions)
     assert log.attrs("spacecraft")["truth_sampler"] == "orekit_oem_writer"
     assert log.attrs("spacecraft")["truth_density_method"] == "pymsis"
     from sim.truth.world import default_threads

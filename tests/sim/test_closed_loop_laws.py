@@ -1,7 +1,8 @@
-"""The three built-in guidance laws flown closed-loop against the Orekit truth (issue 4, checks
-"Ideal variant" and "Realistic variant").
+"""The three built-in guidance laws flown closed-loop against the Orekit truth: the ideal variant
+(each law reaches its target within the model's accuracy) and the realistic variant (the laws
+rank as a closed loop should).
 
-Scenarios (scenarios/*.toml, see the ``closed-loop-scenarios`` section of DEVELOPERS.md):
+Scenarios (scenarios/*.toml; measured results in benchmarks/RESULTS.md):
 
 - ``ei_pair`` / ``ei_pair_ideal``: a close pair, 3 km along-track to a passive-safe e/i-separated
   formation (a de = a di = 300 m, parallel) in 2.5 days; flown as in the file.
@@ -37,7 +38,7 @@ reasons, each bounded separately:
 2. The mean-element map: guidance's first-order J2 (+J3) mean/osculating map versus the judge's
    Eckstein-Hechler mean elements differ by at most ``MAP_M`` = 0.33 m per mean-ROE component
    for offsets up to 5 km, and an e-vector separation reads as ``MAP_E`` = 2.4e-3 of it in
-   a dlambda (guidance-dynamics section of DEVELOPERS.md, both measured against Orekit); plus
+   a dlambda (benchmarks/RESULTS.md [guidance-model], both measured against Orekit); plus
    ``MAP_REL`` = 1e-5 of the along-track separation beyond 5 km (measured here: 2.1 m at 300 km
    in the 25-day spread, common practice, no source). A da mapping error also drifts along-track by
    ``3/2 n (T - t_plan) MAP_M`` until the deadline. ``test_ideal_guidance_state_matches_judge``
@@ -437,7 +438,7 @@ def _realistic_rows(runs: dict[str, Flown]):
 
 
 def _check_realistic_errors(runs):
-    """Issue 4, "Realistic variant": the cadenced re-solve ends closer along-track than the
+    """Realistic variant: the cadenced re-solve ends closer along-track than the
     single-solve hybrid; the single-solve hybrid uses less propulsive dv than propulsion only
     (the judge: sim.judge.metrics, executed impulses and truth mean ROE at the deadline)."""
     for n, res, sgl, prop in _realistic_rows(runs):
@@ -446,7 +447,7 @@ def _check_realistic_errors(runs):
 
 
 def _check_realistic_resolve_dv(runs):
-    """Issue 4, "Realistic variant": the re-solve uses no more than 10 % more propulsive dv than
+    """Realistic variant: the re-solve uses no more than 10 % more propulsive dv than
     the single-solve hybrid, and less than propulsion only."""
     for n, res, sgl, prop in _realistic_rows(runs):
         assert res.dv_total_mps <= 1.10 * sgl.dv_total_mps, n
@@ -474,7 +475,7 @@ def test_realistic_spread_resolve_ends_closer_and_single_saves_dv(spread_real):
 def test_realistic_spread_resolve_dv_within_10pct_of_single_and_below_propulsion(spread_real):
     # the file flies the re-solve with resolve_mode = "drag_only" ([guidance.settings.hybrid_resolve]):
     # impulses as first planned, drag re-planned every cycle; with drag_and_impulses it measured
-    # 1.2-2.0 x the single solve (DEVELOPERS.md, closed-loop-scenarios)
+    # 1.2-2.0 x the single solve (benchmarks/RESULTS.md [scenarios])
     assert spread_real["hybrid_resolve"].cfg.guidance.settings["resolve_mode"] == "drag_only"
     _check_realistic_resolve_dv(spread_real)
 

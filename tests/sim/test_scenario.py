@@ -3,8 +3,8 @@
 Sources: the sun-synchronous inclination check uses the secular J2 nodal rate
 dRAAN/dt = -(3/2) n J2 (Re/p)^2 cos i (Vallado, Fundamentals of Astrodynamics and Applications,
 4th ed., perturbations chapter [memory for the section]) with the mean solar year 365.2422 d
-(common practice, no source); the expected 97.40 deg at 500 km circular is the value quoted in
-the project brief and ../shared/check-values.md ([derived] row: i = 97.4 deg gives +0.9854 deg/day).
+(common practice, no source); the expected 97.40 deg at 500 km circular and the +0.9854 deg/day
+nodal rate at i = 97.4 deg are [derived] from that rate with a = Re + 500 km, e = 0.
 Everything else checks covey's own input contract (common practice, no source).
 """
 
@@ -153,13 +153,13 @@ def test_validate_in_a_fresh_process_exit_code_and_no_jvm(tmp_path, repo_root):
 
 def test_sun_synchronous_inclination_500km():
     i = sun_synchronous_inclination_deg(R_EARTH_M + 500e3, 0.0)
-    assert abs(i - 97.40) < 0.01  # brief / check-values.md [derived]
+    assert abs(i - 97.40) < 0.01  # [derived] from the J2 nodal rate (Vallado) at 500 km
     # forward J2 nodal rate (Vallado) at that inclination is 360 deg per 365.2422 days
     a = R_EARTH_M + 500e3
     n = math.sqrt(MU_EARTH_M3PS2 / a**3)
     rate = -1.5 * n * J2 * (R_EARTH_M / a) ** 2 * math.cos(math.radians(i))
     assert math.degrees(rate) * 86400.0 == pytest.approx(360.0 / 365.2422, rel=1e-9)
-    # 0.9854 deg/day at i = 97.4 (check-values.md [derived])
+    # 0.9854 deg/day at i = 97.4 ([derived] from the same rate)
     rate97 = -1.5 * n * J2 * (R_EARTH_M / a) ** 2 * math.cos(math.radians(97.4))
     assert math.degrees(rate97) * 86400.0 == pytest.approx(0.9854, abs=5e-4)
 
