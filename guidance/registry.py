@@ -49,7 +49,7 @@ def load_law(spec: str) -> GuidanceLaw:
     except Exception as exc:  # noqa: BLE001 - any import failure is a bad spec for the user
         raise GuidanceInputError("guidance.law", spec,
                                  f"module {mod_name!r} cannot be imported ({type(exc).__name__}: "
-                                 f"{exc}); " + _allowed()) from None
+                                 f"{exc}); " + _allowed()) from exc  # COVEY_DEBUG=1 shows its traceback
     cls = getattr(module, cls_name, None)
     if cls is None or not isinstance(cls, type):
         raise GuidanceInputError("guidance.law", spec,
@@ -58,7 +58,7 @@ def load_law(spec: str) -> GuidanceLaw:
         law = cls()
     except Exception as exc:  # noqa: BLE001
         raise GuidanceInputError("guidance.law", spec,
-                                 f"{cls_name}() failed ({type(exc).__name__}: {exc}); " + _allowed()) from None
+                                 f"{cls_name}() failed ({type(exc).__name__}: {exc}); " + _allowed()) from exc
     if not isinstance(law, GuidanceLaw):
         raise GuidanceInputError("guidance.law", spec,
                                  f"{cls_name} lacks setup(mission) / step(t_s, nav); " + _allowed())

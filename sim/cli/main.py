@@ -46,6 +46,12 @@ def _build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def _debug_traceback(exc: BaseException) -> None:
+    """The traceback of ``exc`` (and of what caused it) on stderr when ``COVEY_DEBUG`` is set."""
+    if os.environ.get("COVEY_DEBUG"):
+        traceback.print_exception(type(exc), exc, exc.__traceback__)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``covey`` console script. Returns the exit code."""
     parser = _build_parser()
@@ -60,9 +66,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         return int(args.handler(args))
     except CoveyError as exc:
         _err(str(exc))
+        _debug_traceback(exc)
         return exc.exit_code
     except GuidanceInputError as exc:  # a law's settings refused: bad input
         _err(str(exc))
+        _debug_traceback(exc)  # e.g. why a user law's module failed to import
         return 2
     except KeyboardInterrupt:
         _err("interrupted")

@@ -45,6 +45,7 @@ class DeputyMetrics:
     t_min_rn_separation_s: float = float("nan")
     keep_out_violated: bool = False  # min_distance_any_m < events.keep_out_radius_m (when > 0)
     rn_separation_violated: bool = False  # min_rn_separation_m < events.min_rn_separation_m (> 0)
+    n_unconverted_samples: int = 0  # truth samples without a mean ROE (the judge could not convert)
 
     def as_dict(self) -> dict:
         return asdict(self)
@@ -244,6 +245,7 @@ def run_metrics(f, cfg) -> list[DeputyMetrics]:
                   for sc in cfg.spacecraft if sc.name != d.name}
         m.min_distance_any_m, m.min_distance_other, m.t_min_distance_any_s = closest_approach(
             t, rd, others)
+        m.n_unconverted_samples = int(np.count_nonzero(np.isnan(roe).any(axis=1))) if len(roe) else 0
         out.append(safety_flags(m, float(cfg.events.keep_out_radius_m),
                                 float(cfg.events.min_rn_separation_m)))
     return out
@@ -302,5 +304,6 @@ def write_metrics(rec, metrics: Sequence[DeputyMetrics]) -> None:
                         t_min_rn_separation_s=m.t_min_rn_separation_s,
                         keep_out_violated=m.keep_out_violated,
                         rn_separation_violated=m.rn_separation_violated,
+                        n_unconverted_samples=m.n_unconverted_samples,
                         time_in_mode_names=list(m.time_in_mode_s.keys()),
                         time_in_mode_s=np.asarray(list(m.time_in_mode_s.values()), float))

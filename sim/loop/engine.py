@@ -85,6 +85,8 @@ class Engine:
         self.n_samples = 0
         self.final_roe: dict[str, np.ndarray] = {}
         self.dv_total: dict[str, float] = {n: 0.0 for n in self.names}
+        # truth samples the judge's mean theory could not convert (NaN rows of mean_oe)
+        self.n_unconverted: dict[str, int] = {n: 0 for n in self.names}
         self._declare()
 
     # -- set-up ------------------------------------------------------------------------------
@@ -165,6 +167,8 @@ class Engine:
             t = np.asarray(s["t_s"], dtype=float)
             mean = np.asarray(self.api.mean_elements(t, s["r_eci_m"], s["v_eci_mps"],
                                                      self.cfg.epoch_utc), dtype=float)
+            self.n_unconverted[name] = self.n_unconverted.get(name, 0) + int(
+                np.count_nonzero(np.isnan(mean).any(axis=1)))
             oe = {"a_m": mean[:, 0], "ex": mean[:, 1], "ey": mean[:, 2],
                   "i_deg": np.degrees(mean[:, 3]), "raan_deg": np.degrees(mean[:, 4]) % 360.0,
                   "u_deg": np.degrees(mean[:, 5]) % 360.0}
@@ -210,6 +214,15 @@ class Engine:
                 self.rec.write_async(self._pool)
             self._log_written_t_s = self.t_s
             self._log_written_wall = now
+
+    def write_judge_counts(self) -> None:
+        """``/spacecraft/<name>/mean_oe@n_unconverted``: truth samples the judge's mean theory
+        could not convert (their mean elements and mean ROE are NaN), so a gap is counted, not
+        silent."""
+        for name in self.names:
+            if f"spacecraft/{name}/mean_oe/a_m" in self.rec.file:
+                self.rec.write_attrs(f"spacecraft/{name}/mean_oe",
+                                     n_unconverted=int(self.n_unconverted.get(name, 0)))
 
     def flush_log(self) -> None:
         """Write the buffered log rows to the file and flush it (also done at least every

@@ -180,6 +180,7 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
             status, reason = engine.run()
         engine.flush_log()
         engine.finish()
+        engine.write_judge_counts()
         log.write()
         metrics = run_metrics(rec.file, cfg)
         write_metrics(rec, metrics)
@@ -195,6 +196,7 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
                 pass
             try:  # and the rows still buffered or being written
                 engine.flush_log()
+                engine.write_judge_counts()
             except Exception:  # noqa: BLE001
                 pass
         try:  # rows buffered by the engine

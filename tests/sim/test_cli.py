@@ -211,3 +211,20 @@ def test_guidance_input_error_during_run_is_bad_input(tmp_path, repo_root, fake_
     assert code == 2 and err.strip().splitlines() == [
         "covey: guidance.settings.tolerance_m = -1.0: a number > 0 (m)"]
     assert read_log(tmp_path / "g.h5").status == "failed"
+
+
+def test_a_user_law_that_fails_to_import_keeps_its_traceback_under_debug(tmp_path, repo_root, monkeypatch, capsys):
+    # covey's own contract (common practice, no source): one line without COVEY_DEBUG, the
+    # law module's own traceback with it
+    (tmp_path / "broken_law_mod.py").write_text("import numpy\nraise RuntimeError('law module broke here')\n")
+    monkeypatch.syspath_prepend(str(tmp_path))
+    args = ["validate", str(repo_root / "scenarios" / "demo_formation.toml"),
+            "--set", "guidance.law=broken_law_mod:Law"]
+    monkeypatch.delenv("COVEY_DEBUG", raising=False)
+    assert sim.cli.main.main(args) == 2
+    err = capsys.readouterr().err
+    assert "law module broke here" in err and "Traceback" not in err
+    monkeypatch.setenv("COVEY_DEBUG", "1")
+    assert sim.cli.main.main(args) == 2
+    err = capsys.readouterr().err
+    assert "Traceback" in err and "broken_law_mod.py" in err
