@@ -423,12 +423,6 @@ class ActuatorModel:
         items.sort(key=lambda x: (x[0], x[1]))
         return [self._switch(name, t, mode, t, t + slew) for t, _, mode in items]
 
-    def initial_hold(self, name: str, mode: str, t_s: float = 0.0) -> ExecutedSwitch:
-        """The realised area factor of the mode a spacecraft starts in (no slew)."""
-        self._known(name)
-        self._check_mode(name, mode, f"{name}.initial_mode")
-        return self._switch(name, float(t_s), mode, float(t_s), float(t_s))
-
     def _switch(self, name, t, mode, t0, t1) -> ExecutedSwitch:
         fd = self._drag_factor(name, mode)
         fa, eps = self._attitude_factor(name, mode)

@@ -65,7 +65,6 @@ from sim.models.noise import gauss_markov, stream
 __all__ = [
     "NavigationModel",
     "ErrorProcess",
-    "sample_error_process",
     "kepler_propagate",
     "kepler_stm",
     "REALISTIC_NAVIGATION",
@@ -326,13 +325,6 @@ class ErrorProcess:
             raise ValueError(f"error process epochs must not go backwards: asked {k} after {self._k}")
         self._advance(k)
         return {"white": self._white.copy(), "bias": self.bias.copy(), "gm": self._gm.copy()}
-
-
-def sample_error_process(axes: ErrorAxesConfig, update_s: float, seed: int, source: str,
-                         n: int) -> np.ndarray:
-    """Errors of a fresh :class:`ErrorProcess` at epochs 0 .. n-1, shape (n, 3) (for checks)."""
-    p = ErrorProcess(axes, update_s, seed, source, key=source)
-    return np.array([p.at(k) for k in range(n)])
 
 
 class _Schedule:
@@ -621,10 +613,3 @@ class NavigationModel:
                                                pr.stated_sigma, pv.stated_sigma, m_now)
         return dr, dv, sr, sv, f.t_s
 
-    def errors_at(self, kind: str, name: str, k: int) -> tuple[np.ndarray, np.ndarray]:
-        """Fix errors (position, velocity; RTN axes of the fix) of ``kind``/``name`` at epoch ``k``.
-
-        Advances the processes like :meth:`estimate` does (epochs must not go backwards).
-        """
-        pr, pv = self.processes(kind, name)
-        return pr.at(k), pv.at(k)

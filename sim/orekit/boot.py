@@ -95,11 +95,6 @@ def _orekit_version() -> str:
 # ------------------------------------------------------------------------------------------
 
 
-def is_booted() -> bool:
-    """True once :func:`boot` succeeded in this process."""
-    return _INFO is not None
-
-
 def boot_info() -> BootInfo | None:
     """The :class:`BootInfo` of this process, or None before :func:`boot`."""
     return _INFO
