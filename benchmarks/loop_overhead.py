@@ -112,6 +112,7 @@ def install_timers() -> None:
     import sim.loop.engine as eng
     import sim.orekit.meanroe as meanroe
     import sim.models.navigation as nav
+    import sim.log.buffer as buffer
     import sim.log.recorder as recorder
     import sim.loop.run as run
     import sim.truth.world as truth
@@ -133,7 +134,7 @@ def install_timers() -> None:
     for name in ("append", "flush", "write_dataset", "write_attrs"):
         setattr(recorder.RunRecorder, name, _timed("logging (HDF5)", getattr(recorder.RunRecorder, name)))
     for name in ("append", "write"):
-        setattr(run.BufferedLog, name, _timed("logging (HDF5)", getattr(run.BufferedLog, name)))
+        setattr(buffer.BufferedLog, name, _timed("logging (HDF5)", getattr(buffer.BufferedLog, name)))
     wait = _timed("waiting for the log-writer thread", Future.result)
     plain = Future.result
 
@@ -150,9 +151,9 @@ def install_timers() -> None:
 
 def time_sampler() -> None:
     """Wrap the truth step handler's Python method (the proxy class exists after a first world)."""
-    import sim.truth.world as truth
+    from sim.truth.sampling import sampler_class
 
-    cls = truth._SAMPLER_CLASS
+    cls = sampler_class()
     if cls is None or hasattr(cls.handleStep, "__wrapped_original__"):
         return
     cls.handleStep = _timed("  of which step handler (Python)", cls.handleStep)
@@ -163,7 +164,7 @@ def bare_seconds(cfg) -> tuple[float, list[float]]:
     w = fresh_world(cfg)  # covey's own builders: initial states, static forces, drag with its spans
     f = w.forces
     T = float(cfg.duration_s)
-    props = [w.bare_propagator(name)[0] for name in w._crafts]
+    props = [w.bare_propagator(name)[0] for name in w.names]
     each = []
     c0 = time.process_time()
     t0 = time.perf_counter()
@@ -178,13 +179,13 @@ def bare_seconds(cfg) -> tuple[float, list[float]]:
 def bare_threaded_seconds(cfg, threads: int) -> float:
     """The bare reference on ``threads`` threads (the closed loop's truth threads): a reference
     line, not the target's definition (one propagate() per spacecraft, one after the other)."""
-    from sim.truth.world import _pool
+    from sim.truth.world import thread_pool
 
     w = fresh_world(cfg)
     T = float(cfg.duration_s)
-    props = [w.bare_propagator(name)[0] for name in w._crafts]
+    props = [w.bare_propagator(name)[0] for name in w.names]
     t0 = time.perf_counter()
-    futures = [_pool(threads).submit(p.propagate, w.forces.epoch.shiftedBy(T)) for p in props]
+    futures = [thread_pool(threads).submit(p.propagate, w.forces.epoch.shiftedBy(T)) for p in props]
     for f in futures:
         f.result()
     return time.perf_counter() - t0
@@ -231,20 +232,21 @@ def replay_seconds(cfg, world, log_path: Path) -> float:
     T = float(cfg.duration_s)
     props = []
     lof = LofOffset(f.gcrf, LOFType.QSW)
-    for name, c in world._crafts.items():
-        p, _ = world.bare_propagator(name, T, state=w0._crafts[name].state)  # the flown drag spans
+    isp = {sc.name: (sc.bus.thruster.isp_s if sc.bus.thruster else 0.0) for sc in cfg.spacecraft}
+    for name in world.names:
+        p, _ = world.bare_propagator(name, T, state=w0.orekit_state(name))  # the flown drag spans
         for tk, dk, nk in zip(t_b, dv_b, names):
             if nk == name:
                 p.addEventDetector(ImpulseManeuver(DateDetector(f.epoch.shiftedBy(float(tk))), lof,
                                                    Vector3D(float(dk[0]), float(dk[1]), float(dk[2])),
-                                                   float(c.bus.thruster.isp_s)))
+                                                   float(isp[name])))
         props.append(p)
     t0 = time.perf_counter()
     ends = [p.propagate(f.epoch.shiftedBy(T)) for p in props]
     wall = time.perf_counter() - t0
     gap = []
-    for s_end, c in zip(ends, world._crafts.values()):
-        d = s_end.getPosition(f.gcrf).subtract(c.state.getPosition(f.gcrf))
+    for s_end, name in zip(ends, world.names):
+        d = s_end.getPosition(f.gcrf).subtract(world.orekit_state(name).getPosition(f.gcrf))
         gap.append(float(d.getNorm()))
     REPLAY_GAP_M[:] = gap
     return wall

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["make_sampler", "make_trigger_handler"]
+__all__ = ["make_sampler", "make_trigger_handler", "sampler_class"]
 
 _EPS_T = 1e-6  # s: times closer than this are the same instant
 
@@ -114,3 +114,9 @@ def make_trigger_handler(world, craft, dv_rtn: np.ndarray, isp_s: float):
 
         _TRIGGER_CLASS = _Trigger
     return _TRIGGER_CLASS(world, craft, dv_rtn, isp_s)
+
+
+def sampler_class():
+    """The Python step handler's proxy class, or None before the first truth world made it (a
+    benchmark wraps its ``handleStep`` with a timer)."""
+    return _SAMPLER_CLASS

@@ -101,7 +101,7 @@ def default_threads() -> int:
 _POOLS: dict = {}
 
 
-def _pool(n: int):
+def thread_pool(n: int):
     """The process's propagation thread pool of ``n`` threads (one per size, made on first use;
     threads attached to the JVM as daemons so they never hold the JVM's shut-down), so a world
     never runs more spacecraft at once than its own ``threads``."""
@@ -595,6 +595,11 @@ class TruthWorld:
         c.t_s = t1
         return t1, None
 
+    def orekit_state(self, name: str):
+        """The current Orekit ``SpacecraftState`` of spacecraft ``name`` (GCRF; for benchmarks and
+        cross-checks that drive Orekit directly)."""
+        return self._craft(name).state
+
     def bare_propagator(self, name: str, t1_s: float | None = None, state=None):
         """A plain Orekit propagator of spacecraft ``name`` with the truth's integrator settings
         and force model: the static forces and the drag with its attitude-mode and density-error
@@ -775,7 +780,7 @@ class TruthWorld:
             if n in self._crafts and n not in items:
                 c = self._crafts[n]
                 saved = self._begin(c)
-                items[n] = (saved, _pool(self.threads).submit(self._run_segment, c, t1))
+                items[n] = (saved, thread_pool(self.threads).submit(self._run_segment, c, t1))
         if items:
             self._early = {"t1": t1, "items": items}
         return list(items)
@@ -808,7 +813,7 @@ class TruthWorld:
         begun = dict(begun or {})
         if not begun and (self.threads <= 1 or len(crafts) <= 1):
             return {n: self._run_segment(c, t1) for n, c in crafts}
-        futures = [(n, begun[n] if n in begun else _pool(self.threads).submit(self._run_segment, c, t1))
+        futures = [(n, begun[n] if n in begun else thread_pool(self.threads).submit(self._run_segment, c, t1))
                    for n, c in crafts]
         reached, failure = {}, None
         for n, fut in futures:
