@@ -13,7 +13,7 @@ from pathlib import Path
 import numpy as np
 
 from guidance.registry import load_law
-from test_laws import mission, nav  # the law tests' mission and navigation builders
+from guidance_builders import mission, nav  # tests/guidance/guidance_builders.py
 
 ROOT = Path(__file__).resolve().parents[2]
 SCRIPT = ROOT / "benchmarks" / "law_replay.py"

@@ -22,44 +22,19 @@ import pytest
 
 from guidance.constants import R_EARTH_M
 from guidance.density import DensityModel
-from guidance.interface import (AbsoluteEstimate, DeputyTarget, Diagnostics, GuidanceInputError,
-                                GuidanceLaw, GuidanceOutput, Impulse, Mission, ModeSwitch,
-                                NavSolution, RelativeEstimate, SpacecraftCaps, SpacecraftCommand,
-                                ThrusterCaps)
-from guidance.meanosc import mean_oe_to_rv
-from guidance.planning import propagate_chief
+from guidance.interface import (Diagnostics, GuidanceInputError,
+                                GuidanceLaw, GuidanceOutput, Impulse, ModeSwitch,
+                                NavSolution, RelativeEstimate, SpacecraftCommand)
 from guidance.registry import LAWS, load_law
-from guidance.roe import roe_to_oe, rtn_basis
 
-CHIEF = np.array([R_EARTH_M + 500e3, 0.0, 0.0, np.radians(97.4), 0.3, 0.1])
-AREAS = {"max_drag": 0.034, "min_drag": 0.01, "nominal": 0.02}  # m^2, a 3U bus (invented)
+from guidance_builders import AREAS, CHIEF, caps, mission, nav  # noqa: F401  (tests/guidance/guidance_builders.py)
+
 PATHS = {
     "propulsion_only": "guidance.laws.propulsion_only:PropulsionOnly",
     "hybrid_single": "guidance.laws.hybrid:HybridSingle",
     "hybrid_resolve": "guidance.laws.resolve:HybridResolve",
     "drag_bang_bang": "guidance.laws.example_user_law:DragBangBang",
 }
-
-
-def caps(name, thruster=True, areas=AREAS):
-    thr = ThrusterCaps(0.05, 1e-4, 60.0, 0.2) if thruster else None
-    return SpacecraftCaps(name, 4.0, 2.2, dict(areas), 120.0, thr, "nominal")
-
-
-def mission(settings=None, target=(0.0, -4000.0, 0.0, 0.0, 20.0, 0.0), deadline=3 * 86400.0,
-            thruster=True, areas=AREAS):
-    return Mission("2025-03-01T00:00:00Z", caps("chief", False), (caps("d1", thruster, areas),),
-                   (DeputyTarget("d1", np.array(target, float), deadline),), 5400.0, settings or {})
-
-
-def nav(t, roe_m, chief=CHIEF, valid=True):
-    chief_t = propagate_chief(chief, t)
-    rc, vc = mean_oe_to_rv(chief_t)
-    C = rtn_basis(rc, vc)
-    rd, vd = mean_oe_to_rv(roe_to_oe(chief_t, np.asarray(roe_m, float) / chief[0]))
-    return NavSolution(t, AbsoluteEstimate("chief", t, rc, vc, np.ones(3), np.full(3, 1e-3), 4.0),
-                       {"d1": RelativeEstimate("d1", t, C @ (rd - rc), C @ (vd - vc),
-                                               np.full(3, 0.02), np.full(3, 5e-4), 4.0)}, valid)
 
 
 def check_output(out, t_s, m):

@@ -17,9 +17,10 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from sim.scenario.config import (AttitudeModeConfig, BusConfig, DensityErrorConfig, EnvironmentConfig, EventsConfig,
-                        GeometryConfig, MeanOrbitConfig, RunConfig, SolarActivityConfig, SpacecraftConfig,
-                        ThrusterConfig)
+from sim.scenario.config import (DensityErrorConfig, EnvironmentConfig, EventsConfig,
+                        SolarActivityConfig)
+
+from sim_builders import EPOCH, cubesat_bus, env_only, make_run  # noqa: F401  (tests/sim/sim_builders.py)
 
 pytestmark = pytest.mark.orekit
 
@@ -29,43 +30,11 @@ J2_EARTH = 1.08262668e-3  # unnormalised J2 (EGM-96 class value, Vallado 4th ed.
 MU_EARTH = 3.986004415e14  # m^3/s^2, EIGEN/EGM value (Vallado appendix D) [memory]
 OMEGA_E = 7.292115e-5  # Earth rotation rate, rad/s (WGS-84, NIMA TR8350.2)
 SSO_RATE_DEG_PER_DAY = 360.0 / 365.2422  # mean solar year (common practice, no source needed)
-EPOCH = "2024-06-01T00:00:00Z"  # inside the CSSI observed span of the bundled data
 
 
 # ------------------------------------------------------------------------------------------
 # factory (sim/scenario.py builds these from TOML; here they are built directly)
 # ------------------------------------------------------------------------------------------
-
-
-def cubesat_bus(name="bus3u", mass_kg=4.0, box=(0.1, 0.1, 0.3405), cd=2.2, slew_time_s=120.0, thruster=True):
-    """A 3U-like box. max_drag: velocity along body X (0.1 x 0.3405 face); min_drag: rotated
-    90 deg about Y, velocity along body Z (0.1 x 0.1 end face)."""
-    modes = {
-        "nominal": AttitudeModeConfig("nominal", (0.0, 0.0, 0.0)),
-        "max_drag": AttitudeModeConfig("max_drag", (0.0, 0.0, 0.0)),
-        "min_drag": AttitudeModeConfig("min_drag", (0.0, 90.0, 0.0)),
-    }
-    geo = GeometryConfig(kind="box", box_x_m=box[0], box_y_m=box[1], box_z_m=box[2])
-    return BusConfig(name=name, mass_kg=mass_kg, cd=cd, slew_time_s=slew_time_s, geometry=geo, modes=modes,
-                     thruster=ThrusterConfig(isp_s=60.0) if thruster else None)
-
-
-def make_run(*, alt_km=500.0, e=1e-4, i_deg=97.4, raan_deg=30.0, argp_deg=0.0, u_deg=0.0, deputies=(),
-             chief_mode="nominal", bus=None, env=None, duration_s=86400.0, log_step_s=60.0, seed=1,
-             events=None, epoch=EPOCH) -> RunConfig:
-    bus = bus or cubesat_bus()
-    chief = SpacecraftConfig("chief", bus, initial_mode=chief_mode,
-                             orbit=MeanOrbitConfig(R_E_M + alt_km * 1e3, e, i_deg, raan_deg, argp_deg, u_deg))
-    deps = tuple(SpacecraftConfig(n, bus, initial_mode=m, roe_m=tuple(map(float, roe))) for n, m, roe in deputies)
-    return RunConfig("test", epoch, duration_s, log_step_s, seed, env or EnvironmentConfig(), chief, deps,
-                     events=events or EventsConfig())
-
-
-def env_only(**kw) -> EnvironmentConfig:
-    """Everything off unless switched on."""
-    base = dict(preset="full", gravity_degree=0, gravity_order=0, atmosphere="none", sun=False, moon=False, srp=False)
-    base.update(kw)
-    return EnvironmentConfig(**base)
 
 
 def sso_inclination_deg(a_m: float) -> float:

@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from test_truth_physics import cubesat_bus, make_run  # same folder (pytest prepends it to sys.path)
+from sim_builders import cubesat_bus, make_run  # tests/sim/sim_builders.py
 
 pytestmark = pytest.mark.orekit
 
