@@ -9,8 +9,8 @@ A law built on :class:`PlannerLaw` declares these class attributes:
   ``weak_drag_margin`` applies to its plans; default False);
 - ``EXTRA_SETTINGS``: its own settings (name -> (default, checker, description)).
 
-and may override :meth:`PlannerLaw._wants_plan` (when to re-plan) and
-:meth:`PlannerLaw._request_hook` (how a re-plan differs from the first plan).
+and may override :meth:`PlannerLaw.wants_plan` (when to re-plan) and
+:meth:`PlannerLaw.request_hook` (how a re-plan differs from the first plan).
 """
 
 from __future__ import annotations
@@ -272,9 +272,9 @@ class PlannerLaw:
         self.anchor_t_s = None
         self.period_s = None
         self._chief_done = False
-        self._extra_setup()
+        self.extra_setup()
 
-    def _extra_setup(self) -> None:
+    def extra_setup(self) -> None:
         """Hook for subclasses (after the common set-up)."""
 
     def believed_density_kgpm3(self, r_eci_m: np.ndarray, t_s: np.ndarray | None = None) -> np.ndarray:
@@ -300,11 +300,11 @@ class PlannerLaw:
         return self.density.density_at_eci_kgpm3(r_eci_m)
 
     # ---- per step -------------------------------------------------------------------------
-    def _wants_plan(self, name: str, st: DeputyState, t_s: float, nav: NavSolution) -> bool:
+    def wants_plan(self, name: str, st: DeputyState, t_s: float, nav: NavSolution) -> bool:
         """Whether to (re)plan deputy ``name`` at ``t_s`` (default: only at the first call)."""
         return st.plan is None
 
-    def _request_hook(self, name: str, st: DeputyState, req: PlanRequest, t_s: float) -> PlanRequest:
+    def request_hook(self, name: str, st: DeputyState, req: PlanRequest, t_s: float) -> PlanRequest:
         """Change the request of a re-plan (default: unchanged)."""
         return req
 
@@ -320,7 +320,7 @@ class PlannerLaw:
                 ModeSwitch(float(t_s), self.settings["chief_mode"]),)
             commands[ch.name] = SpacecraftCommand(ch.name, mode_switches=sw)
         t_s = float(t_s)
-        want = {n: self._wants_plan(n, st, t_s, nav) for n, st in self.deputies.items()}
+        want = {n: self.wants_plan(n, st, t_s, nav) for n, st in self.deputies.items()}
         state = None
         if any(want.values()):
             try:
@@ -357,7 +357,7 @@ class PlannerLaw:
         req = self._base_request(name, st, t_s, nav, state)
         if req is None:
             return
-        req = self._request_hook(name, st, req, t_s)
+        req = self.request_hook(name, st, req, t_s)
         realise = bool(self.PLAN_DRAG and req.fixed_duty is None and req.seg_t0_s.size)
         # with drag to realise, this plan only proposes duty cycles: the minimum impulse bit is
         # enforced on the final plan of _realise (whose impulses are re-planned anyway)

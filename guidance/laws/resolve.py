@@ -42,7 +42,7 @@ class HybridResolve(PlannerLaw):
                                   "drag_only: price of a target miss per a-scaled metre"),
     }
 
-    def _extra_setup(self):
+    def extra_setup(self):
         if self.settings["resolve_s"] is None:
             self.settings["resolve_s"] = float(self.mission.cycle_s)
 
@@ -50,7 +50,7 @@ class HybridResolve(PlannerLaw):
         f = self.settings["freeze_s"]
         return float(self.period_s) if f is None else float(f)
 
-    def _wants_plan(self, name, st, t_s, nav):
+    def wants_plan(self, name, st, t_s, nav):
         if st.plan is None:
             return True
         if not nav.valid:
@@ -59,7 +59,7 @@ class HybridResolve(PlannerLaw):
             return False
         return t_s - st.plan_t_s >= self.settings["resolve_s"] - 1e-6
 
-    def _request_hook(self, name, st, req: PlanRequest, t_s) -> PlanRequest:
+    def request_hook(self, name, st, req: PlanRequest, t_s) -> PlanRequest:
         if st.plan is None:
             return req
         s = self.settings
