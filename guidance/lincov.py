@@ -50,8 +50,8 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 from scipy.stats import chi2
 
-from .density import relative_wind_speed_mps
 from .constants import R_EARTH_M
+from .density import relative_wind_speed_mps
 from .estimation import nav_to_mean
 from .interface import AbsoluteEstimate, NavSolution, RelativeEstimate
 from .meanosc import mean_oe_to_rv
@@ -59,10 +59,22 @@ from .planning import STM_MODELS, drag_matrices, impulse_matrices, propagate_chi
 from .roe import roe_to_oe, rtn_basis
 
 __all__ = [
-    "SOURCE_NAMES", "LINEAR_SOURCES", "LinearPlan", "SourceResult", "linear_plan_from_law",
-    "last_resolve_time", "relative_nav_jacobian", "navigation_cov", "thruster_magnitude_cov",
-    "density_cov", "drag_area_cov", "segment_correlation", "support_bounds", "support_factor",
-    "combine", "dominant_sources",
+    "LINEAR_SOURCES",
+    "SOURCE_NAMES",
+    "LinearPlan",
+    "SourceResult",
+    "combine",
+    "density_cov",
+    "dominant_sources",
+    "drag_area_cov",
+    "last_resolve_time",
+    "linear_plan_from_law",
+    "navigation_cov",
+    "relative_nav_jacobian",
+    "segment_correlation",
+    "support_bounds",
+    "support_factor",
+    "thruster_magnitude_cov",
 ]
 
 SOURCE_NAMES = ("navigation", "thruster_magnitude", "pointing", "timing", "density", "drag_area",
@@ -151,7 +163,7 @@ class LinearPlan:
             x = x + np.einsum("jik,jk->i", self.impulse_effects(), self.dv_rtn_mps)
         return x
 
-    def after(self, t_s: float, roe_t: np.ndarray | None = None) -> "LinearPlan":
+    def after(self, t_s: float, roe_t: np.ndarray | None = None) -> LinearPlan:
         """The rest of the plan from ``t_s`` on: impulses at or after ``t_s``, segments clipped to
         ``[t_s, T]``, the chief propagated to ``t_s`` (:func:`guidance.planning.propagate_chief`).
 

@@ -28,8 +28,13 @@ from scipy.stats import chi2
 from guidance.interface import ROE_NAMES
 from guidance.lincov import support_bounds
 
-__all__ = ["DeputyComparison", "compare_with_summary", "sigma_ratio_band", "write_comparison",
-           "comparison_table"]
+__all__ = [
+    "DeputyComparison",
+    "compare_with_summary",
+    "comparison_table",
+    "sigma_ratio_band",
+    "write_comparison",
+]
 
 
 @dataclass

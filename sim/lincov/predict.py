@@ -48,9 +48,19 @@ from guidance.roe import oe_to_roe, roe_to_oe, rtn_basis
 from sim.errors import ScenarioError
 from sim.scenario.config import ErrorAxesConfig, RunConfig
 
-__all__ = ["StartPlan", "CasePrediction", "DeputyPrediction", "Prediction", "plan_at_start",
-           "predict_scenario", "initial_mean_state", "initial_nav", "DEFAULT_CONFIDENCE",
-           "PRIMARY_OPEN_LOOP", "PRIMARY_RESOLVE"]
+__all__ = [
+    "DEFAULT_CONFIDENCE",
+    "PRIMARY_OPEN_LOOP",
+    "PRIMARY_RESOLVE",
+    "CasePrediction",
+    "DeputyPrediction",
+    "Prediction",
+    "StartPlan",
+    "initial_mean_state",
+    "initial_nav",
+    "plan_at_start",
+    "predict_scenario",
+]
 
 DEFAULT_CONFIDENCE = 0.95
 PRIMARY_OPEN_LOOP = "open_loop"
@@ -171,7 +181,6 @@ def plan_at_start(cfg: RunConfig) -> StartPlan:
     """
     from guidance.laws.base import PlannerLaw
     from guidance.registry import load_law
-
     from sim.loop.mission import build_mission
     from sim.models.geometry import mode_areas_m2
 

@@ -51,7 +51,7 @@ from guidance.lincov import SOURCE_NAMES, SourceResult
 from sim.errors import LogFormatError
 from sim.lincov.predict import CasePrediction, DeputyPrediction, Prediction
 
-__all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "PREDICTION_NAME", "write_prediction", "read_prediction"]
+__all__ = ["PREDICTION_NAME", "SCHEMA_NAME", "SCHEMA_VERSION", "read_prediction", "write_prediction"]
 
 SCHEMA_NAME = "covey.prediction"
 SCHEMA_VERSION = "1.0"

@@ -40,8 +40,15 @@ from guidance.constants import R_EARTH_M
 from guidance.density import differential_along_track_accel_mps2, relative_wind_speed_mps
 from guidance.dynamics import drag_segment_input, impulse_input, stm_j2
 from guidance.estimation import nav_to_mean
-from guidance.interface import (AbsoluteEstimate, DeputyTarget, Mission, NavSolution,
-                                RelativeEstimate, SpacecraftCaps, ThrusterCaps)
+from guidance.interface import (
+    AbsoluteEstimate,
+    DeputyTarget,
+    Mission,
+    NavSolution,
+    RelativeEstimate,
+    SpacecraftCaps,
+    ThrusterCaps,
+)
 from guidance.meanosc import mean_oe_to_rv
 from guidance.planning import chief_period_s, propagate_chief, segment_grid
 from guidance.registry import load_law
@@ -313,7 +320,7 @@ def _mission(settings=None, deadline=2 * 86400.0):
                    settings or {})
 
 
-def _nav0(chief=CHIEF, roe_m=np.zeros(6)):
+def _nav0(chief=CHIEF, roe_m=(0.0,) * 6):
     rc, vc = mean_oe_to_rv(chief)
     C = rtn_basis(rc, vc)
     rd, vd = mean_oe_to_rv(roe_to_oe(chief, np.asarray(roe_m, float) / chief[0]))

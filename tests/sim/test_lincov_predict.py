@@ -28,8 +28,8 @@ import pytest
 from scipy.stats import chi2
 
 from guidance import lincov as lc
-from guidance.density import differential_along_track_accel_mps2, relative_wind_speed_mps
 from guidance.constants import R_EARTH_M
+from guidance.density import differential_along_track_accel_mps2, relative_wind_speed_mps
 from guidance.planning import chief_period_s, drag_matrices
 
 from sim.campaign.summary import RunRow, scalar_metric_names, write_summary
@@ -53,7 +53,7 @@ def demo():
 
 
 def test_every_source_is_listed_with_its_status(demo):
-    cfg, _, pred = demo
+    _, _, pred = demo
     assert tuple(pred.statuses) == lc.SOURCE_NAMES
     assert {k for k, v in pred.statuses.items() if v == "linear"} == set(lc.LINEAR_SOURCES)
     assert {k for k, v in pred.statuses.items() if v == "monte_carlo_only"} == {
