@@ -14,6 +14,9 @@ from __future__ import annotations
 from sim.campaign.summary import CampaignSummary, read_summary
 from sim.errors import CoveyError, EnvironmentSetupError, LogFormatError, PropagationError, ScenarioError
 from sim.judge.metrics import DeputyMetrics, run_metrics
+from sim.lincov.compare import compare_with_summary
+from sim.lincov.predict import Prediction, predict_scenario
+from sim.lincov.store import read_prediction, write_prediction
 from sim.log.diff import diff_logs
 from sim.log.reader import RunLog, read_log
 from sim.loop.options import RunOptions
@@ -23,5 +26,6 @@ from sim.scenario.reader import load_scenario, parse_scenario
 
 __all__ = ["load_scenario", "parse_scenario", "RunConfig", "run_scenario", "RunSummary", "RunOptions",
            "read_log", "RunLog", "diff_logs", "run_metrics", "DeputyMetrics", "read_summary",
-           "CampaignSummary", "CoveyError", "ScenarioError", "EnvironmentSetupError",
+           "CampaignSummary", "predict_scenario", "Prediction", "write_prediction", "read_prediction",
+           "compare_with_summary", "CoveyError", "ScenarioError", "EnvironmentSetupError",
            "PropagationError", "LogFormatError"]

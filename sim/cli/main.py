@@ -26,6 +26,7 @@ COMMANDS = {
     "run": "sim.cli.run",
     "validate": "sim.cli.validate",
     "demo": "sim.cli.demo",
+    "predict": "sim.cli.predict",
 }
 """Command name -> module (with ``add_parser`` and ``run``), in the order ``--help`` lists them."""
 
