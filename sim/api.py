@@ -13,6 +13,7 @@ from __future__ import annotations
 
 from sim.campaign.summary import CampaignSummary, read_summary
 from sim.errors import CoveyError, EnvironmentSetupError, LogFormatError, PropagationError, ScenarioError
+from sim.gate import assert_requirements, check, compare, judge_log
 from sim.judge.metrics import DeputyMetrics, run_metrics
 from sim.log.diff import diff_logs
 from sim.log.reader import RunLog, read_log
@@ -24,4 +25,5 @@ from sim.scenario.reader import load_scenario, parse_scenario
 __all__ = ["load_scenario", "parse_scenario", "RunConfig", "run_scenario", "RunSummary", "RunOptions",
            "read_log", "RunLog", "diff_logs", "run_metrics", "DeputyMetrics", "read_summary",
            "CampaignSummary", "CoveyError", "ScenarioError", "EnvironmentSetupError",
-           "PropagationError", "LogFormatError"]
+           "PropagationError", "LogFormatError", "judge_log", "compare", "check",
+           "assert_requirements"]

@@ -26,6 +26,9 @@ COMMANDS = {
     "run": "sim.cli.run",
     "validate": "sim.cli.validate",
     "demo": "sim.cli.demo",
+    "judge": "sim.cli.judge",
+    "compare": "sim.cli.compare",
+    "check": "sim.cli.check",
 }
 """Command name -> module (with ``add_parser`` and ``run``), in the order ``--help`` lists them."""
 
