@@ -28,7 +28,7 @@ def fmt_num(x: float, units: str = "") -> str:
     if x is None or np.isnan(x):
         return "nan"
     if np.isinf(x):
-        return "unmeasured" if x > 0 else "-unmeasured"
+        return "unmeasured"
     s = str(int(x)) if float(x).is_integer() and abs(x) < 1e6 else format(float(x), ".4g")
     return f"{s} {units}" if units and units != "1" else s
 

@@ -101,9 +101,11 @@ def _notes(sources: Sequence[Source], labels: Sequence[str], deputies: list) -> 
             notes.append(f"{lab}: a {s.kind} compared with a {a.kind}: the run is taken as a "
                          "sample of one")
         diff = _setup_diff(a, s)
-        if diff:
+        if diff == ["campaign_toml"]:
+            notes.append(f"{lab}: its campaign file differs from {labels[0]}'s")
+        elif diff:
             shown = ", ".join(diff[:5]) + (f" and {len(diff) - 5} more" if len(diff) > 5 else "")
-            what = "scenario settings" if a.kind == s.kind == "run" else "setup"
+            what = "scenario settings" if a.kind == s.kind == "run" else "settings"
             notes.append(f"{lab}: {what} differ from {labels[0]} in {shown}")
         only_a = sorted(set(a.deputies) - set(s.deputies))
         only_s = sorted(set(s.deputies) - set(a.deputies))
