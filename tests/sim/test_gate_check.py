@@ -272,3 +272,19 @@ def test_unmeasured_counts_as_worst(runs, tmp_path):
     assert any(np.isnan(x.time_to_tolerance_s) for x in m)
     row = check(runs["bad"].path, p).rows[0]
     assert row.verdict == "fail" and row.measured_text.endswith("unmeasured")
+
+
+def test_check_in_a_fresh_process_exit_code_and_no_jvm(runs, repo_root):
+    """Real process exit codes (0 pass, 1 fail); judging and checking never load JPype/Orekit
+    (the issue: no propagation, no Java)."""
+    import subprocess
+    import sys
+
+    code = ("import sys; from sim.cli.main import main; rc = main(sys.argv[1:]); "
+            "print('jpype' in sys.modules, 'orekit_jpype' in sys.modules); sys.exit(rc)")
+    for cand, rc in ((runs["good"].path, 0), (runs["bad"].path, 1)):
+        out = subprocess.run([sys.executable, "-c", code, "check", str(cand), "-r",
+                              str(runs["reqs"]), "-b", str(runs["good"].path)], cwd=repo_root,
+                             capture_output=True, text=True, timeout=120)
+        assert out.returncode == rc, out.stderr
+        assert out.stdout.strip().endswith("False False") and "Traceback" not in out.stderr
