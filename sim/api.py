@@ -13,6 +13,7 @@ from __future__ import annotations
 
 from sim.campaign.summary import CampaignSummary, read_summary
 from sim.errors import CoveyError, EnvironmentSetupError, LogFormatError, PropagationError, ScenarioError
+from sim.gate import assert_requirements, check, compare, judge_log
 from sim.judge.metrics import DeputyMetrics, run_metrics
 from sim.lincov.compare import compare_with_summary
 from sim.lincov.predict import Prediction, predict_scenario
@@ -27,5 +28,6 @@ from sim.scenario.reader import load_scenario, parse_scenario
 __all__ = ["load_scenario", "parse_scenario", "RunConfig", "run_scenario", "RunSummary", "RunOptions",
            "read_log", "RunLog", "diff_logs", "run_metrics", "DeputyMetrics", "read_summary",
            "CampaignSummary", "predict_scenario", "Prediction", "write_prediction", "read_prediction",
-           "compare_with_summary", "CoveyError", "ScenarioError", "EnvironmentSetupError",
-           "PropagationError", "LogFormatError"]
+           "compare_with_summary", "judge_log", "compare", "check", "assert_requirements",
+           "CoveyError", "ScenarioError", "EnvironmentSetupError", "PropagationError",
+           "LogFormatError"]

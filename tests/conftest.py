@@ -19,7 +19,9 @@ def repo_root() -> Path:
 
 @pytest.fixture
 def scenario_paths() -> list[Path]:
-    return sorted((REPO / "scenarios").glob("*.toml"))
+    """The scenario files of scenarios/ (requirements files, ``*_requirements.toml``, left out)."""
+    return sorted(p for p in (REPO / "scenarios").glob("*.toml")
+                  if not p.name.endswith("_requirements.toml"))
 
 
 class FakeTruthWorld:
@@ -126,15 +128,10 @@ class FakeTruthWorld:
         pass
 
 
-@pytest.fixture
-def fake_truth(monkeypatch):
-    """Replace the Orekit side of sim.loop.run with FakeTruthWorld; yields the class (set
-    ``fail_at_s`` / ``stop_at_s`` on it)."""
-    import sim.loop.run
+def fake_truth_api(World):
+    """The truth backend namespace of sim.loop.run (``truth_backend()``) with ``World`` (a
+    FakeTruthWorld class) as the truth; for a module-scoped stand-in, see :func:`fake_truth`."""
     from guidance.roe import oe_to_roe, rv_to_oe
-
-    class World(FakeTruthWorld):
-        pass
 
     boot_info = SimpleNamespace(data_path="/fake", data_source="fake", orekit_version="fake",
                                 java_version="fake", jpype_version="fake",
@@ -143,5 +140,18 @@ def fake_truth(monkeypatch):
         boot=lambda data_path=None: boot_info, TruthWorld=World,
         mean_elements=lambda t, r, v, epoch: rv_to_oe(r, v),
         mean_roe_m=lambda c, d: oe_to_roe(c, d) * np.asarray(c)[..., :1])
+    return api
+
+
+@pytest.fixture
+def fake_truth(monkeypatch):
+    """Replace the Orekit side of sim.loop.run with FakeTruthWorld; yields the class (set
+    ``fail_at_s`` / ``stop_at_s`` on it)."""
+    import sim.loop.run
+
+    class World(FakeTruthWorld):
+        pass
+
+    api = fake_truth_api(World)
     monkeypatch.setattr(sim.loop.run, "truth_backend", lambda: api)
     return World

@@ -27,6 +27,9 @@ COMMANDS = {
     "validate": "sim.cli.validate",
     "demo": "sim.cli.demo",
     "predict": "sim.cli.predict",
+    "judge": "sim.cli.judge",
+    "compare": "sim.cli.compare",
+    "check": "sim.cli.check",
 }
 """Command name -> module (with ``add_parser`` and ``run``), in the order ``--help`` lists them."""
 
