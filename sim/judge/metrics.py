@@ -110,16 +110,18 @@ def cycle_outcomes(status: Sequence[str]) -> dict[str, int]:
     return out
 
 
-def cycles_text(counts: Mapping[str, int]) -> str:
-    """``"12/12 ok"``, ``"9 infeasible, 3 hold / 12"`` (statuses other than ok, most severe first),
-    or ``"none"`` when no cycle was flown (free drift)."""
+def cycles_text(counts: Mapping[str, int], noun: str = "") -> str:
+    """``"12/12 ok"``, ``"9 infeasible, 3 hold / 12"`` (statuses other than ok, most severe
+    first), or ``"none"`` when no cycle was flown (free drift). ``noun`` (e.g. ``"cycles"``) is
+    put after the total: ``"12/12 cycles ok"``, ``"9 infeasible / 12 cycles"``."""
     n = sum(counts.values())
     if n == 0:
         return "none"
+    unit = f" {noun}" if noun else ""
     bad = [(s, counts[s]) for s in sorted(counts, key=_severity) if s != "ok" and counts[s]]
     if not bad:
-        return f"{n}/{n} ok"
-    return ", ".join(f"{c} {s}" for s, c in bad) + f" / {n}"
+        return f"{n}/{n}{unit} ok"
+    return ", ".join(f"{c} {s}" for s, c in bad) + f" / {n}{unit}"
 
 
 def _severity(status: str) -> int:
@@ -457,11 +459,11 @@ def table_notes(metrics: Sequence[DeputyMetrics], cfg) -> list[str]:
              "i-vector errors, |err| of all six; target met: inside the [metrics] tolerance box "
              "at the deadline; t to box: time to enter the box and stay in it (never: not in it "
              "at the end)"]
-    early = [m for m in metrics if not m.reached_deadline]
+    early = dict.fromkeys(f"{m.name} at t = {m.t_final_s / 86400.0:.3g} d (deadline "
+                          f"{m.deadline_s / 86400.0:.3g} d)" for m in metrics if not m.reached_deadline)
     if early:
         lines.append("*: taken before the deadline, at the last sample (the run ended early): "
-                     + ", ".join(f"{m.name} at t = {m.t_final_s / 86400.0:.3g} d (deadline "
-                                 f"{m.deadline_s / 86400.0:.3g} d)" for m in early))
+                     + ", ".join(early))
     ev = cfg.events
     mons = []
     if ev.keep_out_radius_m > 0:

@@ -158,7 +158,7 @@ class RunSummary:
         if dv:
             txt += f", dv {dv:.4f} m/s"
         if self.cycle_counts:
-            txt += f", guidance: {cycles_text(self.cycle_counts)} cycles"
+            txt += f", guidance: {cycles_text(self.cycle_counts, 'cycles')}"
         if self.metrics:
             txt += f", {self.targets_text()}"
         if self.final_error_m:
