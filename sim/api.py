@@ -22,7 +22,8 @@ from sim.scenario.config import RunConfig
 from sim.scenario.feasibility import feasibility_warnings
 from sim.scenario.reader import load_scenario, parse_scenario
 
-__all__ = ["load_scenario", "parse_scenario", "feasibility_warnings", "RunConfig", "run_scenario", "RunSummary", "RunOptions",
+__all__ = ["load_scenario", "parse_scenario", "feasibility_warnings", "RunConfig", "run_scenario",
+           "RunSummary", "RunOptions",
            "read_log", "RunLog", "diff_logs", "run_metrics", "DeputyMetrics", "read_summary",
            "CampaignSummary", "CoveyError", "ScenarioError", "EnvironmentSetupError",
            "PropagationError", "LogFormatError"]

@@ -11,9 +11,10 @@ HELP = "check a scenario file without running it"
 
 def add_parser(sub) -> argparse.ArgumentParser:
     v = sub.add_parser("validate", help=HELP,
-                       description="Check a scenario file without running it (no Java needed): print what it "
-                                   "resolved, and warnings about targets no actuator can reach "
-                                   "and spacecraft starting inside the keep-out radius.")
+                       description="Check a scenario file without running it (no Java "
+                                   "needed): print what it resolved, and warnings about targets "
+                                   "no actuator can reach and spacecraft starting inside the "
+                                   "keep-out radius.")
     v.add_argument("scenario", metavar="SCENARIO", help="scenario TOML file")
     v.add_argument("--orekit-data", metavar="PATH",
                    help="Orekit data folder or zip for the solar-activity span check")
@@ -32,7 +33,8 @@ def run(args: argparse.Namespace) -> int:
     cfg = load(args.scenario, args)
     law = check_guidance(cfg)
     warnings = feasibility_warnings(cfg)
-    note = f" ({len(warnings)} warning{'s' if len(warnings) != 1 else ''} below)" if warnings else ""
+    plural = "s" if len(warnings) != 1 else ""
+    note = f" ({len(warnings)} warning{plural} below)" if warnings else ""
     out(f"ok: {args.scenario} is a valid scenario{note}")
     if law:
         out(f"  guidance law {cfg.guidance.law!r} ({law}) accepts its settings and the mission")

@@ -44,8 +44,8 @@ class DeputyMetrics:
     n_switches: int
     final_error_m: list
     final_error_norm_m: float
-    max_error_after_convergence_m: float
-    time_to_tolerance_s: float  # nan when never entered
+    max_error_after_convergence_m: float  # largest |error| from entering the box to the deadline
+    time_to_tolerance_s: float  # enter the box and stay in it up to the deadline; nan: not in it
     reached_deadline: bool
     time_in_mode_s: dict = field(default_factory=dict)
     min_distance_m: float = float("nan")  # to the chief, over the logged samples
@@ -65,7 +65,8 @@ class DeputyMetrics:
         return asdict(self)
 
 
-def target_verdict(final_error_m, tolerance_m, reached_deadline: bool, t_final_s: float = float("nan"),
+def target_verdict(final_error_m, tolerance_m, reached_deadline: bool,
+                   t_final_s: float = float("nan"),
                    deadline_s: float = float("nan")) -> tuple[bool, str]:
     """Whether a deputy met its target, and why not.
 
@@ -225,13 +226,15 @@ def deputy_metrics(
     k_final = int(np.searchsorted(t_s, deadline_s - 1e-6)) if reached else t_s.size - 1
     k_final = min(max(k_final, 0), t_s.size - 1)
     final = err[k_final] if t_s.size else np.full(6, np.nan)
-    # time to enter the tolerance box and stay in it until the end of the record
+    # time to enter the tolerance box and stay in it until the judged sample (the deadline, or the
+    # last sample of a run that ended earlier): after the deadline a deputy may drift out again
     ttt = float("nan")
+    inside = inside[:k_final + 1]
     if inside.size and inside[-1]:
         outside = np.nonzero(~inside)[0]
         k_in = 0 if outside.size == 0 else outside[-1] + 1
         ttt = float(t_s[k_in] - t_s[0])
-        max_after = float(np.max(np.linalg.norm(err[k_in:], axis=1)))
+        max_after = float(np.max(np.linalg.norm(err[k_in:k_final + 1], axis=1)))
     else:
         max_after = float("nan")
     t_final = float(t_s[k_final]) if t_s.size else float("nan")
@@ -457,10 +460,11 @@ def table_notes(metrics: Sequence[DeputyMetrics], cfg) -> list[str]:
     lines = ["errors: truth mean ROE (Orekit Eckstein-Hechler) minus target at the deadline, "
              "a-scaled m; |a de err| and |a di err| are the magnitudes of the relative e- and "
              "i-vector errors, |err| of all six; target met: inside the [metrics] tolerance box "
-             "at the deadline; t to box: time to enter the box and stay in it (never: not in it "
-             "at the end)"]
+             "at the deadline; t to box: time to enter the box and stay in it up to the deadline "
+             "(never: not in it at the deadline)"]
     early = dict.fromkeys(f"{m.name} at t = {m.t_final_s / 86400.0:.3g} d (deadline "
-                          f"{m.deadline_s / 86400.0:.3g} d)" for m in metrics if not m.reached_deadline)
+                          f"{m.deadline_s / 86400.0:.3g} d)"
+                          for m in metrics if not m.reached_deadline)
     if early:
         lines.append("*: taken before the deadline, at the last sample (the run ended early): "
                      + ", ".join(early))
@@ -471,7 +475,8 @@ def table_notes(metrics: Sequence[DeputyMetrics], cfg) -> list[str]:
     if ev.min_rn_separation_m > 0:
         mons.append(f"RN separation: radial/normal separation to the chief below "
                     f"{ev.min_rn_separation_m:g} m")
-    what = "; ".join(mons) if mons else "off ([events] keep_out_radius_m and min_rn_separation_m are 0)"
+    what = ("; ".join(mons) if mons
+            else "off ([events] keep_out_radius_m and min_rn_separation_m are 0)")
     lines.append(f"monitor flags: {what}. Monitors and min dist / min RN sep are sampled every "
                  f"log_step_s = {cfg.log_step_s:g} s of logged truth (a closer approach between "
                  "samples is missed); they are no conjunction assessment")

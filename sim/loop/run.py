@@ -135,7 +135,8 @@ class RunSummary:
                 parts = v.split(", ")  # components outside the box, worst first
                 v = parts[0] + (f" (+{len(parts) - 1} more)" if len(parts) > 1 else "")
             missed.append(f"{m.name}: {v}")
-        head = "no" if len(self.metrics) == 1 else f"no, {len(self.metrics) - len(missed)} of {len(self.metrics)}"
+        n = len(self.metrics)
+        head = "no" if n == 1 else f"no, {n - len(missed)} of {n}"
         return f"target met: {head} ({'; '.join(missed)})"
 
     @property

@@ -101,6 +101,25 @@ def test_target_verdict_names_what_failed():
     assert target_verdict([np.nan] * 6, tol, True) == (False, "no: no truth samples to judge")
 
 
+def test_time_to_box_counts_up_to_the_deadline():
+    """Inside the box from sample 5 through the deadline (sample 8), out again after it: the
+    target is met and 't to box' is t[5], not 'never' (a deputy may drift after its deadline)."""
+    from sim.judge.metrics import deputy_metrics
+
+    t = np.arange(11) * 600.0
+    roe = np.zeros((11, 6))
+    roe[:5, 1] = 100.0  # a dlambda error 100 m before sample 5
+    roe[9:, 1] = 30.0  # and 30 m after the deadline
+    tol = np.full(6, 10.0)
+    w = 2 * np.pi / 5400.0
+    rc = np.c_[7e6 * np.cos(w * t), 7e6 * np.sin(w * t), np.zeros(11)]
+    vc = np.c_[-7e6 * w * np.sin(w * t), 7e6 * w * np.cos(w * t), np.zeros(11)]
+    m = deputy_metrics("d1", t, roe, np.zeros(6), 4800.0, tol, np.zeros((0, 3)), 0.0, 0,
+                       np.zeros(11, int), ["nominal"], rc, vc, rc + [0.0, 0.0, 100.0])
+    assert m.target_met and m.t_final_s == 4800.0 and m.time_to_tolerance_s == 3000.0
+    assert m.max_error_after_convergence_m == 0.0
+
+
 def test_cycle_counts_text():
     c = cycle_outcomes(["ok"] * 2 + ["hold"] * 9 + ["infeasible"] * 23)
     assert c["infeasible"] == 23 and c["hold"] == 9 and sum(c.values()) == 34
@@ -142,7 +161,8 @@ def test_feasibility_warnings_out_of_plane_keep_out_and_deadline():
     # in-plane e change is possible with drag; the out-of-plane diy change is not
     assert len(w) == 1 and "a diy by +150.0 m out of plane" in w[0] and "a dey" not in w[0]
     # the same change with a thruster: nothing to warn about
-    thr = base.replace("[bus.plain.modes.max_drag]", "[bus.plain.thruster]\n[bus.plain.modes.max_drag]")
+    thr = base.replace("[bus.plain.modes.max_drag]",
+                       "[bus.plain.thruster]\n[bus.plain.modes.max_drag]")
     assert feasibility_warnings(parse_scenario(thr, "x.toml")) == []
     # a thruster without propellant counts as none
     dry = thr.replace("[bus.plain.thruster]", "[bus.plain.thruster]\npropellant_kg = 0.0")
