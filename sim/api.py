@@ -23,9 +23,11 @@ from sim.log.reader import RunLog, read_log
 from sim.loop.options import RunOptions
 from sim.loop.run import RunSummary, run_scenario
 from sim.scenario.config import RunConfig
+from sim.scenario.feasibility import feasibility_warnings
 from sim.scenario.reader import load_scenario, parse_scenario
 
-__all__ = ["load_scenario", "parse_scenario", "RunConfig", "run_scenario", "RunSummary", "RunOptions",
+__all__ = ["load_scenario", "parse_scenario", "feasibility_warnings", "RunConfig", "run_scenario",
+           "RunSummary", "RunOptions",
            "read_log", "RunLog", "diff_logs", "run_metrics", "DeputyMetrics", "read_summary",
            "CampaignSummary", "predict_scenario", "Prediction", "write_prediction", "read_prediction",
            "compare_with_summary", "judge_log", "compare", "check", "assert_requirements",

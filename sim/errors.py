@@ -22,7 +22,8 @@ class ScenarioError(CoveyError):
     key : str
         Dotted key path in the scenario file (e.g. ``deputies[1].roe_m``).
     value : Any
-        The value given (``None`` when missing).
+        The value given (``None`` when missing; :data:`ScenarioError.MISSING` for a key or table
+        that is absent, then the message names the key alone, without ``= value``).
     allowed : str
         What is allowed, with units.
     hint : str
@@ -30,11 +31,14 @@ class ScenarioError(CoveyError):
     """
 
     exit_code = 2
+    MISSING: Any = type("Missing", (), {"__repr__": lambda self: "<missing>"})()
+    """The ``value`` of a key or table that is not in the file."""
 
     def __init__(self, key: str, value: Any, allowed: str, hint: str = "", path: str = ""):
         self.key, self.value, self.allowed, self.hint, self.path = key, value, allowed, hint, path
         where = f"{path}: " if path else ""
-        msg = f"{where}{key} = {value!r}: {allowed}"
+        shown = "" if value is ScenarioError.MISSING else f" = {value!r}"
+        msg = f"{where}{key}{shown}: {allowed}"
         if hint:
             msg += f" ({hint})"
         super().__init__(msg)

@@ -25,7 +25,7 @@ import numpy as np
 from ..density import DensityModel, differential_along_track_accel_mps2, relative_wind_speed_mps
 from ..constants import R_EARTH_M
 from ..estimation import nav_to_mean
-from ..settings import check_number
+from ..settings import check_number, closest
 from ..interface import (Diagnostics, GuidanceInputError, GuidanceOutput, Impulse, Mission,
                          ModeSwitch, NavSolution, SpacecraftCaps, SpacecraftCommand)
 from ..planning import (STM_MODELS, Plan, PlanRequest, burn_grid, chief_period_s, plan_deputy,
@@ -156,7 +156,8 @@ def parse_settings(settings: Mapping[str, Any] | None, spec: Mapping[str, tuple]
     Raises
     ------
     GuidanceInputError
-        ``guidance.settings.<key>`` for an unknown key (listing the allowed ones) or a bad value.
+        ``guidance.settings.<key>`` for an unknown key (with the closest allowed key, as
+        :func:`guidance.settings.closest` finds it, and the list of allowed ones) or a bad value.
     """
     settings = {} if settings is None else settings
     if not isinstance(settings, Mapping):
@@ -164,8 +165,10 @@ def parse_settings(settings: Mapping[str, Any] | None, spec: Mapping[str, tuple]
     out = {}
     for k in settings:
         if k not in spec:
+            close = closest(k, list(spec))
+            hint = f" (did you mean {close!r}?)" if close else ""
             raise GuidanceInputError(f"guidance.settings.{k}", settings[k],
-                                     "an unknown setting; allowed: " + ", ".join(sorted(spec)))
+                                     f"an unknown setting{hint}; allowed: " + ", ".join(sorted(spec)))
     for k, (default, check, _doc) in spec.items():
         v = settings.get(k, default)
         out[k] = check(f"guidance.settings.{k}", v) if (k in settings or default is not None) else None

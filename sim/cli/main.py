@@ -4,7 +4,9 @@ Each command module has ``add_parser(subparsers) -> ArgumentParser`` and
 ``run(args) -> int`` (the exit code). Exit codes: 0 ok (also a run stopped cleanly by an event),
 1 run failed, 2 bad input (scenario, command line, missing Java or data). covey's own errors print
 one line on stderr; an unexpected exception prints one line too, and its traceback only with
-``COVEY_DEBUG=1``.
+``COVEY_DEBUG=1``. A closed stdout (``covey run ... | head -1``) is not an error: the commands
+print through :func:`sim.cli.common.out`, which sends the rest of the output to the null device,
+and the command keeps its exit code.
 """
 
 from __future__ import annotations
@@ -20,6 +22,7 @@ from guidance.interface import GuidanceInputError
 
 from sim import __version__
 from sim.cli.common import err as _err
+from sim.cli.common import stdout_to_devnull
 from sim.errors import CoveyError
 
 COMMANDS = {
@@ -63,11 +66,21 @@ def main(argv: Sequence[str] | None = None) -> int:
         args = parser.parse_args(argv)
     except SystemExit as exc:  # argparse: --help (0) or a usage error (2)
         return int(exc.code or 0)
+    except BrokenPipeError:  # --help into a closed pipe
+        stdout_to_devnull()
+        return 0
     if args.command is None:
-        parser.print_help()
+        try:
+            parser.print_help()
+        except BrokenPipeError:
+            stdout_to_devnull()
         return 2
     try:
         return int(args.handler(args))
+    except BrokenPipeError:  # output written past sim.cli.common.out: the command's code is lost
+        stdout_to_devnull()
+        _err("output stopped: stdout was closed before the command finished")
+        return 1
     except CoveyError as exc:
         _err(str(exc))
         _debug_traceback(exc)
@@ -100,7 +113,10 @@ def console_main() -> None:
         code = main()
     finally:
         try:
-            sys.stdout.flush()
+            try:
+                sys.stdout.flush()
+            except BrokenPipeError:  # the reader closed the pipe: not a failure of the command
+                stdout_to_devnull()
             sys.stderr.flush()
         finally:
             os._exit(int(code) if isinstance(code, int) else 1)

@@ -10,7 +10,7 @@ from pathlib import Path
 
 from guidance.interface import GuidanceInputError
 
-from sim.cli.common import DEFAULT_RESULTS, Progress, add_run_options, load
+from sim.cli.common import DEFAULT_RESULTS, Progress, add_run_options, load, out as _out
 from sim.cli.common import err as _err
 from sim.errors import CoveyError
 
@@ -30,13 +30,17 @@ def run(args: argparse.Namespace) -> int:
 
 
 def fly(args: argparse.Namespace, scenario: str | Path, demo: bool = False,
-             cfg=None, summaries: list | None = None) -> int:
+        cfg=None, summaries: list | None = None, out_path: Path | None = None) -> int:
+    """Fly one scenario: warnings on stderr, the summary line (and, unless ``demo``, the metrics
+    table) on stdout; the exit code (``--strict``: 1 also for a missed target or an infeasible
+    guidance cycle)."""
     from sim.loop.run import run_scenario
+    from sim.scenario.feasibility import feasibility_warnings
 
     cfg = load(scenario, args) if cfg is None else cfg
-    out = Path(args.output) if args.output else DEFAULT_RESULTS / f"{cfg.name}.h5"
-    if args.output and (out.is_dir() or args.output.endswith(("/", os.sep))):
-        out = out / f"{cfg.name}.h5"  # a folder: the default file name inside it
+    out = out_path if out_path is not None else output_path(args.output, cfg.name)
+    for w in feasibility_warnings(cfg):
+        _err(f"warning: {w}")
     bar = Progress() if (not args.quiet and sys.stderr.isatty()) else None
     if bar is not None:
         bar.start()
@@ -45,13 +49,17 @@ def fly(args: argparse.Namespace, scenario: str | Path, demo: bool = False,
     finally:
         if bar is not None:
             bar.done()
-    print(summary.line())
+    _out(summary.line())
     if summaries is not None:
         summaries.append(summary)
     if summary.metrics and not demo:
-        from sim.judge.metrics import METRIC_COLUMNS, format_table, table_rows
+        from sim.judge.metrics import METRIC_COLUMNS, format_table, table_notes, table_rows
 
-        print(format_table(table_rows(summary.metrics), METRIC_COLUMNS))
+        _out(format_table(table_rows(summary.metrics, events=cfg.events), METRIC_COLUMNS))
+        for line in table_notes(summary.metrics, cfg):
+            _out(line)
+    for line in infeasible_lines(summary):
+        _out(line)
     if summary.status == "failed":
         err = summary.error
         if isinstance(err, (CoveyError, GuidanceInputError)):
@@ -61,4 +69,32 @@ def fly(args: argparse.Namespace, scenario: str | Path, demo: bool = False,
                  f"(/meta/traceback); run with COVEY_DEBUG=1 for the traceback")
             if os.environ.get("COVEY_DEBUG") and err is not None:
                 traceback.print_exception(type(err), err, err.__traceback__)
-    return summary.exit_code
+    return summary.exit_code_for(getattr(args, "strict", False))
+
+
+def output_path(output: str | None, name: str) -> Path:
+    """The run log of ``-o PATH``: the file, ``<name>.h5`` inside a folder (an existing one, or a
+    path ending with a separator), or ``results/<name>.h5`` without ``-o``."""
+    if not output:
+        return DEFAULT_RESULTS / f"{name}.h5"
+    out = Path(output)
+    if out.is_dir() or output.endswith(("/", os.sep)):
+        out = out / f"{name}.h5"
+    return out
+
+
+def infeasible_lines(summary) -> list[str]:
+    """One line naming the infeasible guidance cycles of a run (their indices and times, and the
+    first message the law gave), or nothing."""
+    bad = summary.infeasible_cycles
+    if not bad:
+        return []
+    from sim.judge.metrics import index_ranges
+
+    total = sum(summary.cycle_counts.values())
+    idx, t0, msg = bad[0]
+    msgs = {m for _, _, m in bad}
+    more = f" ({len(msgs) - 1} other message(s) in the log)" if len(msgs) > 1 else ""
+    return [f"guidance infeasible in {len(bad)} of {total} cycles of {summary.name}: cycles "
+            f"{index_ranges([b[0] for b in bad])} (first at t = {t0 / 3600.0:.2f} h): {msg}{more}; "
+            "every message: /guidance/cycles/message in the log"]

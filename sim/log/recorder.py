@@ -26,8 +26,10 @@ import numpy as np
 __all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "RunRecorder", "units_for"]
 
 SCHEMA_NAME = "covey.runlog"
-SCHEMA_VERSION = "1.2"
-"""Major.minor. A reader accepts any file of the same major version."""
+SCHEMA_VERSION = "1.3"
+"""Major.minor. A reader accepts any file of the same major version. 1.3 added the target verdict:
+``/metrics/<deputy>`` attributes ``target_met``, ``target_verdict``, ``deadline_s``, ``t_final_s``
+and the ``/meta`` attribute ``targets_met``."""
 
 _COMPRESSION = dict(compression="gzip", compression_opts=4, shuffle=True)
 _STR = h5py.string_dtype(encoding="utf-8")

@@ -22,7 +22,7 @@ import numpy as np
 from guidance.interface import GuidanceInputError
 
 from sim.errors import CoveyError, EnvironmentSetupError
-from sim.judge.metrics import run_metrics, write_metrics
+from sim.judge.metrics import cycles_text, read_cycles, run_metrics, write_metrics
 from sim.log.buffer import BufferedLog
 from sim.log.provenance import git_commit, write_boot_meta, write_start_meta
 from sim.log.recorder import RunRecorder
@@ -66,6 +66,17 @@ class RunSummary:
         target.
     dv_total_mps : dict
         Spacecraft name -> sum of executed impulse magnitudes, m/s.
+    metrics : list of DeputyMetrics
+        Per deputy with a target (:mod:`sim.judge.metrics`), each with its ``target_met`` verdict.
+    cycle_counts : dict
+        Guidance cycle outcome -> number of cycles (``/guidance/cycles/status``); empty in free
+        drift.
+    infeasible_cycles : list
+        ``(cycle_index, t_s, message)`` of every cycle the law reported infeasible.
+
+    ``status`` says whether the run flew to the end; whether the deputies met their targets is
+    :attr:`targets_met`. :attr:`exit_code` follows the status only; :meth:`exit_code_for` with
+    ``strict=True`` also fails a missed target or an infeasible guidance cycle.
     """
 
     path: Path
@@ -82,6 +93,51 @@ class RunSummary:
     final_error_m: dict[str, np.ndarray] = field(default_factory=dict)
     metrics: list = field(default_factory=list)
     error: BaseException | None = field(default=None, repr=False)
+    cycle_counts: dict[str, int] = field(default_factory=dict)
+    infeasible_cycles: list = field(default_factory=list)
+
+    @property
+    def targets_met(self) -> bool | None:
+        """True when every deputy with a target met it (inside the tolerance box at the
+        deadline), False when one did not, None when no deputy has a target (or the run failed
+        before it was judged)."""
+        if not self.metrics:
+            return None
+        return all(m.target_met for m in self.metrics)
+
+    @property
+    def n_infeasible(self) -> int:
+        """Guidance cycles the law reported infeasible."""
+        return int(self.cycle_counts.get("infeasible", 0))
+
+    def exit_code_for(self, strict: bool = False) -> int:
+        """The exit code; with ``strict``, 1 also for a run that flew but missed a target
+        (:attr:`targets_met` False) or had an infeasible guidance cycle. A failed run keeps its
+        own code."""
+        code = self.exit_code
+        if strict and code == 0 and (self.targets_met is False or self.n_infeasible > 0):
+            return 1
+        return code
+
+    def targets_text(self) -> str:
+        """``target met: yes``, or ``target met: no (<deputy>: <worst component>; ...)``."""
+        if not self.metrics:
+            return ""
+        if self.targets_met:
+            n = len(self.metrics)
+            return "target met: yes" + (f" ({n} deputies)" if n > 1 else "")
+        missed = []
+        for m in self.metrics:
+            if m.target_met:
+                continue
+            v = m.target_verdict.removeprefix("no: ")
+            if m.reached_deadline and np.all(np.isfinite(m.final_error_m)):
+                parts = v.split(", ")  # components outside the box, worst first
+                v = parts[0] + (f" (+{len(parts) - 1} more)" if len(parts) > 1 else "")
+            missed.append(f"{m.name}: {v}")
+        n = len(self.metrics)
+        head = "no" if n == 1 else f"no, {n - len(missed)} of {n}"
+        return f"target met: {head} ({'; '.join(missed)})"
 
     @property
     def exit_code(self) -> int:
@@ -101,7 +157,11 @@ class RunSummary:
                f"wall {self.wall_time_s:.1f} s")
         dv = sum(self.dv_total_mps.values())
         if dv:
-            txt += f", dv {dv * 1000:.1f} mm/s"
+            txt += f", dv {dv:.4f} m/s"
+        if self.cycle_counts:
+            txt += f", guidance: {cycles_text(self.cycle_counts, 'cycles')}"
+        if self.metrics:
+            txt += f", {self.targets_text()}"
         if self.final_error_m:
             worst = max(self.final_error_m.items(),
                         key=lambda kv: float(np.nan_to_num(np.linalg.norm(kv[1]), nan=-1)))
@@ -184,6 +244,8 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
         log.write()
         metrics = run_metrics(rec.file, cfg)
         write_metrics(rec, metrics)
+        if metrics:
+            rec.write_attrs("meta", targets_met=all(m.target_met for m in metrics))
     except BaseException as exc:  # noqa: BLE001 - recorded, then re-raised or returned
         error = exc
         status = "failed"
@@ -207,6 +269,10 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
         if engine is not None:
             engine.close()
         wall = time.perf_counter() - wall0
+        try:  # the guidance cycle outcomes, also of a failed run
+            cycles = read_cycles(rec.file)
+        except Exception:  # noqa: BLE001
+            cycles = {"counts": {}, "infeasible": []}
         try:
             rec.write_attrs("meta", wall_time_s=wall,
                             t_end_s=engine.t_s if engine is not None else 0.0)
@@ -225,4 +291,5 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
         wall_time_s=wall, n_samples=engine.n_samples if engine is not None else 0,
         spacecraft=names, final_mean_roe_m=final, final_error_m=errors,
         dv_total_mps=dict(engine.dv_total) if engine else {}, metrics=metrics, error=error,
+        cycle_counts=cycles["counts"], infeasible_cycles=cycles["infeasible"],
     )

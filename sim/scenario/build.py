@@ -294,6 +294,12 @@ def _buses(top: Table, src: str) -> dict[str, BusConfig]:
 
 def _bus(t: Table, name: str) -> BusConfig:
     mass = t.num("mass_kg", lo=0.0, hi=10000.0, lo_open=True)
+    if not t.has("modes"):
+        raise t.err("modes", ScenarioError.MISSING,
+                    "required table missing: every bus defines the attitude modes "
+                    + ", ".join(MODE_NAMES_REQUIRED) + "; add the tables "
+                    + ", ".join(f"[{t.key('modes')}.{m}]" for m in MODE_NAMES_REQUIRED)
+                    + " (an empty table means zero rotation)")
     modes_t = t.table("modes", (), required=True, open_keys=True)
     modes = {}
     for mname, body in modes_t.d.items():
@@ -305,7 +311,8 @@ def _bus(t: Table, name: str) -> BusConfig:
     for req in MODE_NAMES_REQUIRED:
         if req not in modes:
             close = difflib.get_close_matches(req, list(modes), n=1, cutoff=0.6)
-            raise modes_t.err(req, None, "required attitude mode missing; every bus defines "
+            raise modes_t.err(req, ScenarioError.MISSING,
+                              "required attitude mode missing; every bus defines "
                               + ", ".join(MODE_NAMES_REQUIRED) + f" (add [{modes_t.key(req)}])",
                               f"found {close[0]!r}" if close else "")
     geometry = _geometry(t.table("geometry", ("kind", "box_x_m", "box_y_m", "box_z_m", "panels",

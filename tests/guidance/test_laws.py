@@ -102,6 +102,8 @@ def test_unknown_setting_is_refused_with_the_allowed_keys(name):
         law.setup(mission({"burns_per_orbt": 8}))
     assert err.value.key == "guidance.settings.burns_per_orbt"
     assert "burns_per_orbit" in str(err.value) and "segments_per_orbit" in str(err.value)
+    # the same suggestion scenario keys get (guidance.settings.closest, difflib)
+    assert "did you mean 'burns_per_orbit'?" in str(err.value)
 
 
 @pytest.mark.parametrize("key,value", [("burns_per_orbit", 0), ("segments_per_orbit", 2.5),

@@ -73,10 +73,12 @@ def test_different_scenarios_deputies_and_schema(logs, tmp_path):
     with h5py.File(older, "r+") as f:
         f.attrs["schema_version"] = "1.1"
     c = compare([logs["propulsion_only"].path, older])
-    assert any("schema covey.runlog 1.1 vs covey.runlog 1.2" in n for n in c.notes)
+    from sim.log.recorder import SCHEMA_VERSION
+
+    assert any(f"schema covey.runlog 1.1 vs covey.runlog {SCHEMA_VERSION}" in n for n in c.notes)
     d = compare([logs["propulsion_only"].path, logs["pair"].path])
     line = [n for n in d.notes if "deputies differ" in n]
-    assert len(line) == 1 and "only in A: beta, gamma" in line[0] and "only in B: egret" in line[0]
+    assert len(line) == 1 and "only in A: beta, gamma" in line[0] and "only in B: d1" in line[0]
     assert d.rows == []  # nothing in common to compare
 
 

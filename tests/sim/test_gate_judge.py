@@ -157,7 +157,7 @@ def test_cli_judge(s, tmp_path, capsys):
     assert "beta.rn_separation_violated (False -> True)" in doc["notes"][-1]
     assert main(["judge", str(s.path), "--format", "csv"]) == 0
     lines = capsys.readouterr().out.strip().splitlines()
-    assert lines[0].startswith("name,dv_total_mps") and len(lines) == 3
+    assert lines[0].startswith("name,") and ",dv_total_mps," in lines[0] and len(lines) == 3
     # bad input: a flight key, a file that is not a log -> exit 2, one line
     assert main(["judge", str(s.path), "--set", "run.seed=3"]) == 2
     err = capsys.readouterr().err.strip().splitlines()
