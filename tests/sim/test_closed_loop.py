@@ -253,7 +253,9 @@ def test_bad_law_cli_exit_1_one_line(tmp_path, repo_root, fake_truth, capsys):
     out = tmp_path / "c.h5"
     code = main(["run", str(repo_root / "scenarios/demo_formation.toml"), "-o", str(out),
                  "--set", "run.duration_days=0.5", "--set", f'guidance.law="{THIS}:RaisingLaw"',
-                 "--set", "guidance.settings.how=raise"])
+                 "--set", "guidance.settings.how=raise",
+                 # deadlines inside the run: no validate warning precedes the one error line
+                 "--set", "deputies[0].deadline_days=0.5", "--set", "deputies[1].deadline_days=0.5"])
     cap = capsys.readouterr()
     assert code == 1
     lines = cap.err.strip().splitlines()
