@@ -26,6 +26,8 @@ COMMANDS = {
     "run": "sim.cli.run",
     "validate": "sim.cli.validate",
     "demo": "sim.cli.demo",
+    "report": "sim.cli.report",
+    "export": "sim.cli.export",
 }
 """Command name -> module (with ``add_parser`` and ``run``), in the order ``--help`` lists them."""
 
