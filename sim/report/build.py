@@ -65,6 +65,14 @@ class ReportResult:
         raise KeyError(f"no figure {name!r}; figures: {[f.name for f in self.figures]}")
 
 
+_PAGE_ORDER = {
+    "run": ["scenario", "provenance", "verification", "compare", "metrics", "final_roe", "impulses",
+            "navigation", "events", "data_files"],
+    "campaign": ["campaign", "scenario", "provenance", "verification", "compare", "campaign_metrics",
+                 "performance_bounds", "sweep", "error_budget"]}
+"""Table order on the page (and numbering); the long data-file list goes to the appendix."""
+
+
 def source_kind(path: str | Path) -> str:
     """``"run"`` for a covey run log, ``"campaign"`` for a campaign folder or ``summary.h5``.
 
@@ -237,8 +245,10 @@ def build_report(source: str | Path, out_dir: str | Path, *,
 
     if rows:
         tables.insert(1, verification_table(rows))
+    order = _PAGE_ORDER[kind]
+    tables.sort(key=lambda t: order.index(t.name) if t.name in order else len(order))
     long_tables = [t for t in tables if t.name == "data_files"]
-    for n, t in enumerate(tables, start=1):
+    for n, t in enumerate(tables, start=1):  # numbered in the order the page shows them
         t.number = n
         t.write(tab_dir)
     by = {t.name: t for t in tables}
