@@ -67,7 +67,7 @@ class ReportResult:
 
 _PAGE_ORDER = {
     "run": ["scenario", "provenance", "verification", "compare", "metrics", "final_roe", "impulses",
-            "navigation", "events", "data_files"],
+            "navigation", "events", "data_files"],  # a long events table joins data_files at the end
     "campaign": ["campaign", "scenario", "provenance", "verification", "compare", "campaign_metrics",
                  "performance_bounds", "sweep", "error_budget"]}
 """Table order on the page (and numbering); the long data-file list goes to the appendix."""
@@ -247,14 +247,16 @@ def build_report(source: str | Path, out_dir: str | Path, *,
         tables.insert(1, verification_table(rows))
     order = _PAGE_ORDER[kind]
     tables.sort(key=lambda t: order.index(t.name) if t.name in order else len(order))
-    long_tables = [t for t in tables if t.name == "data_files"]
+    long_tables = [t for t in tables if t.name == "data_files"
+                   or (t.name == "events" and len(t.rows) > 12)]
+    long_names = {t.name for t in long_tables}
     for n, t in enumerate(tables, start=1):  # numbered in the order the page shows them
         t.number = n
         t.write(tab_dir)
     by = {t.name: t for t in tables}
 
-    def sec(names):
-        return "\n".join(by[n].to_html() for n in names if n in by)
+    def sec(names):  # long tables go to the appendix, collapsed
+        return "\n".join(by[n].to_html() for n in names if n in by and n not in long_names)
 
     if kind == "run":
         sections = [("scenario", "Scenario", sec(["scenario"])),
@@ -283,7 +285,7 @@ def build_report(source: str | Path, out_dir: str | Path, *,
     if kind == "campaign" and main.summary.campaign_toml:
         appendix.append(("Campaign file (verbatim from the summary)", main.summary.campaign_toml))
     for t in long_tables:
-        appendix.append((f"Table {t.number}. {t.title} ({len(t.rows)} files)", t.to_html(), True))
+        appendix.append((f"Table {t.number}. {t.title} ({len(t.rows)} rows)", t.to_html(), True))
     page = render_page(title=title, subtitle=subtitle + f"; covey {__version__}", sections=sections,
                        figures=figs, skipped=skipped, appendix=appendix)
     html_path = out / "report.html"

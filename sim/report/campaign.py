@@ -466,20 +466,14 @@ CAMPAIGN_FIGURES = {"monte_carlo": ("final_error_scatter", "cdf", "cdf_component
 
 def campaign_figures(camps: Sequence[CampaignData], rows: Sequence[VerificationRow] = (),
                      p: float = 0.95) -> list:
+    """The figures of the campaign's kind (:data:`CAMPAIGN_FIGURES`), FigureSpec or Skipped."""
     c = camps[0]
     builders = {"final_error_scatter": lambda: fig_scatter(camps, p),
                 "cdf": lambda: fig_cdf(camps, rows, p),
                 "cdf_components": lambda: fig_cdf_components(camps, rows, p),
                 "sweep": lambda: fig_sweep(camps), "error_budget": lambda: fig_budget(camps)}
-    wanted = CAMPAIGN_FIGURES.get(c.kind)
-    out = []
-    for name, make in builders.items():
-        if wanted is not None and name not in wanted:
-            out.append(Skipped(name, name.replace("_", " "),
-                               f"not drawn for a campaign of kind {c.kind!r}"))
-            continue
-        out.append(make())
-    return out
+    wanted = CAMPAIGN_FIGURES.get(c.kind, tuple(builders))
+    return [make() for name, make in builders.items() if name in wanted]
 
 
 # ------------------------------------------------------------------------------------------

@@ -232,6 +232,8 @@ def load_run(source: str | Path | RunLog, label: str = "") -> RunData:
         if bel is not None and not np.any(np.isfinite(bel)):
             bel = None
         roe = _arr(log, f"{base}/mean_roe_m", (6,))
+        if roe is not None and len(roe) != kk:  # rows as truth/t_s (a damaged log: NaN-padded)
+            roe = np.vstack([roe[:kk], np.full((max(0, kk - len(roe)), 6), np.nan)])
 
         def get(p, tail=(), fill=np.nan):
             v = _arr(log, f"{base}/truth/{p}", tail)

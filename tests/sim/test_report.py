@@ -164,6 +164,7 @@ def test_run_report_has_every_figure_as_png_and_pdf(report):
     idx = list(csv.DictReader((report.out_dir / "figures" / "index.csv").open()))
     assert [r["name"] for r in idx] == list(RUN_FIGURES)
     tex = (report.out_dir / "figures" / "figures.tex").read_text()
+    assert tex.isascii()
     assert tex.count("\\begin{figure}") == len(RUN_FIGURES) and "fig01_roe_planes.pdf" in tex
 
 
@@ -195,6 +196,7 @@ def test_run_report_tables_csv_and_latex(report, logs):
             "navigation", "data_files"} <= names
     for t in report.tables:
         tex = (tdir / f"{t.name}.tex").read_text()
+        assert tex.isascii(), t.name  # symbols as LaTeX math (pdflatex reads it without inputenc)
         assert tex.index("\\toprule") < tex.index("\\midrule") < tex.index("\\bottomrule")
         assert tex.count("\\\\") == len(t.rows) + 1  # header + one line per row
         assert list(csv.reader((tdir / f"{t.name}.csv").open()))[0] == [c.key for c in t.columns]
@@ -559,7 +561,7 @@ def _chromium() -> str:
     return exe
 
 
-def _browse(exe: str, page: Path, work: Path) -> dict:
+def _browse(exe: str, page: Path, work: Path, shot: bool = True) -> dict:
     """Open a copy of ``page`` with the probe script in headless chromium: image states, errors
     the page raised, resources fetched, console lines on stderr, and a screenshot."""
     import html as _html
@@ -576,6 +578,8 @@ def _browse(exe: str, page: Path, work: Path) -> dict:
     assert m, (res.returncode, res.stderr[-2000:])
     out = json.loads(_html.unescape(m.group(1)))
     out["console"] = [ln for ln in res.stderr.splitlines() if ":CONSOLE" in ln]
+    if not shot:
+        return out
     shot = work / f"shot_{page.parent.name}.png"
     res2 = subprocess.run([exe, *flags, "--window-size=1200,1800", f"--screenshot={shot}",
                            page.as_uri()], capture_output=True, text=True, timeout=180)
@@ -604,8 +608,23 @@ def test_report_pages_render_in_a_headless_browser(report, campaigns, tmp_path):
     bad.parent.mkdir()
     bad.write_text('<!DOCTYPE html><html><head><meta charset="utf-8"></head><body><p>x</p>'
                    '<img src="data:image/png;base64,AAAA"><script>undefinedCall();</script></body></html>')
-    r = _browse(exe, bad, tmp_path)
+    r = _browse(exe, bad, tmp_path, shot=False)
     assert r["images"][0][1] == 0 and any("undefinedCall" in e for e in r["errors"] + r["console"])
     _page_ok(_browse(exe, report.html, tmp_path), len(report.figures))
     mc = campaigns["monte_carlo"]
     _page_ok(_browse(exe, mc.html, tmp_path), len(mc.figures))
+
+
+def test_reports_of_thin_inputs(tmp_path):
+    # one spacecraft and no guidance; a campaign whose runs all failed: a report all the same
+    one = _fly_fake(load_scenario(REPO / "scenarios" / "decay_jb2008.toml", {"run.duration_days": 0.1}),
+                    tmp_path / "one.h5")
+    r = build_report(one, tmp_path / "out_one", formats=("png",), dpi=40)
+    assert [f.name for f in r.figures] == ["modes", "density"]
+    assert {s.name for s in r.skipped} == {"roe_planes", "roe_history", "delta_v", "dv_remaining",
+                                           "nav_absolute", "nav_relative", "rtn_motion"}
+    synthetic_campaign(tmp_path / "failed", "monte_carlo", n_runs=4, n_failed=4)
+    c = build_report(tmp_path / "failed", tmp_path / "out_failed", formats=("png",), dpi=40)
+    assert c.figures == [] and {s.name for s in c.skipped} == {"final_error_scatter", "cdf", "cdf_components"}
+    page = c.html.read_text()
+    assert "failed 4" in page and "no run log of the campaign could be read" in page
