@@ -158,7 +158,8 @@ def build_report(source: str | Path, out_dir: str | Path, *,
     source : path
         A run log (``.h5``), or a campaign folder (or its ``summary.h5``).
     out_dir : path
-        Folder to write (created; files of the same names are replaced).
+        Folder to write (created; files of the same names are replaced, and the numbered figures
+        of an earlier report in ``figures/`` removed).
     requirements : path or sequence of VerificationRow, optional
         The verification matrix: rows, or a CSV/JSON file of them
         (:func:`sim.report.verification.read_verification`).
@@ -229,6 +230,8 @@ def build_report(source: str | Path, out_dir: str | Path, *,
     fig_dir, tab_dir = out / "figures", out / "tables"
     fig_dir.mkdir(parents=True, exist_ok=True)
     tab_dir.mkdir(parents=True, exist_ok=True)
+    for old in list(fig_dir.glob("fig[0-9][0-9]_*.png")) + list(fig_dir.glob("fig[0-9][0-9]_*.pdf")):
+        old.unlink()  # figures of an earlier report in this folder (numbers may have moved)
     figs = [f for f in built if isinstance(f, FigureSpec)]
     skipped = [f for f in built if isinstance(f, Skipped)]
     for n, f in enumerate(figs, start=1):

@@ -624,7 +624,8 @@ def test_reports_of_thin_inputs(tmp_path):
     assert {s.name for s in r.skipped} == {"roe_planes", "roe_history", "delta_v", "dv_remaining",
                                            "nav_absolute", "nav_relative", "rtn_motion"}
     synthetic_campaign(tmp_path / "failed", "monte_carlo", n_runs=4, n_failed=4)
-    c = build_report(tmp_path / "failed", tmp_path / "out_failed", formats=("png",), dpi=40)
+    c = build_report(tmp_path / "failed", tmp_path / "out_one", formats=("png",), dpi=40)
     assert c.figures == [] and {s.name for s in c.skipped} == {"final_error_scatter", "cdf", "cdf_components"}
+    assert not list((tmp_path / "out_one" / "figures").glob("fig[0-9]*"))  # the earlier figures went
     page = c.html.read_text()
     assert "failed 4" in page and "no run log of the campaign could be read" in page
