@@ -298,6 +298,8 @@ def fig_cdf_components(camps: Sequence[CampaignData], rows: Sequence[Verificatio
             ax.axhline(p, color="#9aa3ad", lw=0.6)
             ax.set_ylim(0, 1.02)
             ax.set_xlabel(f"|{ROE_LABELS[i]} error| [m]")
+            if i % 2 == 0:
+                ax.set_ylabel("fraction of runs ≤ value")
         h, lab = axes[0].get_legend_handles_labels()
         fig.legend(h, lab, loc="outside lower center", ncol=max(1, len(h)))
         source_legend(axes[1], [cp.label for cp in camps], loc="upper left")
