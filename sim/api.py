@@ -5,8 +5,10 @@
     cfg = load_scenario("scenarios/demo_drift.toml", overrides={"run.duration_days": 1.0})
     summary = run_scenario(cfg, "results/demo_1day.h5")
     log = read_log(summary.path)
+    build_report(summary.path, "results/report_demo_1day")   # figures, tables, report.html
 
-Importing this module starts no JVM (the truth is booted by ``run_scenario``).
+Importing this module starts no JVM (the truth is booted by ``run_scenario``; the OEM export
+boots it too).
 """
 
 from __future__ import annotations
@@ -31,5 +33,18 @@ __all__ = ["load_scenario", "parse_scenario", "feasibility_warnings", "RunConfig
            "read_log", "RunLog", "diff_logs", "run_metrics", "DeputyMetrics", "read_summary",
            "CampaignSummary", "predict_scenario", "Prediction", "write_prediction", "read_prediction",
            "compare_with_summary", "judge_log", "compare", "check", "assert_requirements",
+           "build_report", "ReportResult", "VerificationRow", "export_run",
            "CoveyError", "ScenarioError", "EnvironmentSetupError", "PropagationError",
            "LogFormatError"]
+
+# The report and export names load matplotlib: imported on first use (PEP 562), not with sim.api.
+_LAZY = {"build_report": "sim.report.build", "ReportResult": "sim.report.build",
+         "VerificationRow": "sim.report.verification", "export_run": "sim.report.export"}
+
+
+def __getattr__(name: str):
+    if name in _LAZY:
+        import importlib
+
+        return getattr(importlib.import_module(_LAZY[name]), name)
+    raise AttributeError(f"module 'sim.api' has no attribute {name!r}")

@@ -33,6 +33,8 @@ COMMANDS = {
     "judge": "sim.cli.judge",
     "compare": "sim.cli.compare",
     "check": "sim.cli.check",
+    "report": "sim.cli.report",
+    "export": "sim.cli.export",
 }
 """Command name -> module (with ``add_parser`` and ``run``), in the order ``--help`` lists them."""
 
