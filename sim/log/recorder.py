@@ -53,6 +53,7 @@ header (length, CRC-32), Fletcher-32 on chunked datasets, checkpoint attributes 
 
 _COMPRESSION = dict(compression="gzip", compression_opts=4, shuffle=True)
 _CHECKSUM = dict(fletcher32=True)  # HDF5 refuses it on variable-length strings (the CRC covers them)
+_CHECKPOINT_ATTRS = ("checkpoint_index", "checkpoint_utc", "checkpoint_t_s", "checkpoint_samples")
 _CORE_BLOCK_BYTES = 1 << 20  # the in-memory file grows by this much at a time
 _STR = h5py.string_dtype(encoding="utf-8")
 
@@ -302,8 +303,9 @@ class RunRecorder:
     def checkpoint(self) -> bool:
         """Write the log as it is now to ``<final>.part`` (status ``running``), atomically.
 
-        Root attributes ``checkpoint_index``, ``checkpoint_utc``, ``checkpoint_t_s`` and
-        ``checkpoint_samples`` say which checkpoint it is. Returns False (and writes nothing) once
+        Root attributes ``checkpoint_index`` (1, 2, ...), ``checkpoint_utc``, ``checkpoint_t_s``
+        (the last truth sample's time, s) and ``checkpoint_samples`` (chief samples) say which
+        checkpoint it is (removed from the complete log at :meth:`close`). Returns False (and writes nothing) once
         the recorder is broken or closed.
 
         Raises
@@ -314,7 +316,7 @@ class RunRecorder:
         if self.broken is not None or self.closed:
             return False
         a = self._f.attrs
-        a["checkpoint_index"] = self.n_checkpoints + 1
+        a["checkpoint_index"] = self.n_checkpoints  # the first image (when made) was number 0
         a["checkpoint_utc"] = _utc_now()
         a["checkpoint_t_s"] = self.t_s
         a["checkpoint_samples"] = self.n_samples
@@ -376,6 +378,9 @@ class RunRecorder:
                     g.attrs["status"] = status
                     g.attrs["reason"] = reason or ""
                 meta.attrs["finished_utc"] = _utc_now()
+                for k in _CHECKPOINT_ATTRS:  # a complete log is no checkpoint
+                    if k in self._f.attrs:
+                        del self._f.attrs[k]
                 if traceback:
                     self.write_dataset("meta/traceback", traceback, units="text")
                 self._write_image(self.path, status)

@@ -13,7 +13,6 @@ import errno
 import os
 import subprocess
 import sys
-import textwrap
 import time
 from pathlib import Path
 
@@ -96,3 +95,131 @@ def test_unusable_folder_is_an_os_error_and_leaves_nothing(tmp_path):
     with pytest.raises(OSError):
         RunRecorder(tmp_path / "file" / "x.h5")  # a file where the folder should be
     assert _names(tmp_path) == ["file"]
+
+
+# ------------------------------------------------------------------------------------------
+# checkpoints
+# ------------------------------------------------------------------------------------------
+
+
+def _drift(repo_root, seconds=12000.0, **more):
+    from sim.scenario.reader import load_scenario
+
+    return load_scenario(repo_root / "scenarios/demo_drift.toml",
+                         {"run.duration_s": seconds, **more})
+
+
+@pytest.mark.parametrize("log_thread", [False, True])
+def test_checkpoints_are_readable_partial_logs(tmp_path, repo_root, fake_truth, monkeypatch,
+                                               log_thread):
+    from sim.loop.options import RunOptions
+    from sim.loop.run import run_scenario
+
+    seen = []
+    real = RunRecorder.checkpoint
+
+    def spy(self):
+        ok = real(self)
+        log = read_log(self.part_path)  # what a reader finds on disk right now
+        seen.append((log.partial, log.meta["checkpoint_index"], log.meta["checkpoint_t_s"],
+                     log.get("spacecraft/alpha/truth/t_s", np.zeros(0))))
+        return ok
+
+    monkeypatch.setattr(RunRecorder, "checkpoint", spy)
+    opts = RunOptions(checkpoint_cycles=1, checkpoint_wall_s=1e9, log_thread=log_thread)
+    s = run_scenario(_drift(repo_root), tmp_path / "c.h5", options=opts)
+    assert s.status == "ok"
+    # the demo's cycle is 5400 s: cycles end at 5400, 10800, 12000 s, one checkpoint each
+    assert [x[1] for x in seen] == [1, 2, 3] and all(x[0] for x in seen)
+    for _, _, t_ck, t in seen:
+        assert t[-1] == t_ck  # each checkpoint holds the samples up to its own time
+    assert [x[2] for x in seen] == [5400.0, 10800.0, 12000.0]
+    log = read_log(tmp_path / "c.h5")
+    assert not log.partial and log.status == "ok" and log.checked
+    assert _names(tmp_path) == ["c.h5"]
+
+
+def test_default_checkpoints_after_the_first_cycle_then_by_wall_time(tmp_path, repo_root,
+                                                                     fake_truth, monkeypatch):
+    from sim.loop.options import RunOptions
+    from sim.loop.run import run_scenario
+
+    n = []
+    real = RunRecorder.checkpoint
+    monkeypatch.setattr(RunRecorder, "checkpoint", lambda self: n.append(1) or real(self))
+    assert RunOptions().checkpoint_wall_s == 60.0 and RunOptions().checkpoint_cycles == 0
+    run_scenario(_drift(repo_root), tmp_path / "d.h5")
+    assert len(n) == 1  # a fraction of a second of wall time: only the first cycle's
+
+
+# ------------------------------------------------------------------------------------------
+# kill -9 mid-run
+# ------------------------------------------------------------------------------------------
+
+def _fly_and_exit(cfg, path):  # a forked child: the fake truth is inherited from the test
+    from sim.loop.options import RunOptions
+    from sim.loop.run import run_scenario
+
+    s = run_scenario(cfg, path, options=RunOptions(checkpoint_cycles=1))
+    os._exit(0 if s.status == "ok" else 1)
+
+
+@pytest.mark.slow
+def test_kill_9_at_random_moments_leaves_readable_logs(tmp_path, repo_root, fake_truth):
+    """10 kills (SIGKILL) at seeded random moments of a 24-checkpoint run (one per cycle): the
+    earlier log stays intact or is replaced by a complete one; a .part reads as a partial log to
+    its last checkpoint; a .tmp (killed mid-write) is refused cleanly; a later run cleans up."""
+    import multiprocessing
+
+    from sim.loop.run import run_scenario
+
+    ctx = multiprocessing.get_context("fork")
+    path = tmp_path / "k.h5"
+    cfg = _drift(repo_root, 43200.0, **{"guidance.cycle_s": 1800.0})
+    t0 = time.perf_counter()  # how long a whole run takes here, so the kills fall inside it
+    child = ctx.Process(target=_fly_and_exit, args=(cfg, path))
+    child.start()
+    child.join(120)
+    full_s = time.perf_counter() - t0
+    assert child.exitcode == 0
+    run_scenario(_drift(repo_root), path)  # a short earlier log
+    earlier = read_log(path)
+    rng = np.random.default_rng(20261204)
+    seen = {"part": 0, "tmp": 0, "replaced": 0}
+    for delay in rng.uniform(0.0, full_s, size=10):
+        child = ctx.Process(target=_fly_and_exit, args=(cfg, path))
+        child.start()
+        time.sleep(float(delay))
+        child.kill()
+        child.join()
+        for p in sorted(tmp_path.iterdir()):
+            if p.name.endswith(".lock"):
+                continue
+            if p.name.endswith(".tmp"):  # the image being written when killed: never parsed
+                seen["tmp"] += 1
+                with pytest.raises(LogFormatError):
+                    read_log(p)
+                continue
+            log = read_log(p)  # any other name reads cleanly
+            if p.name.endswith(".part"):
+                seen["part"] += 1
+                assert log.partial and log.status == "running"
+                if "checkpoint_t_s" not in log.meta:  # the image made when the log was opened
+                    assert "spacecraft/alpha/truth/t_s" not in log
+                    continue
+                t = log.get("spacecraft/alpha/truth/t_s")
+                assert t[-1] == log.meta["checkpoint_t_s"]
+                assert np.array_equal(t, np.arange(len(t)) * 60.0)
+            else:
+                assert p == path and not log.partial
+                if log.meta["created_utc"] != earlier.meta["created_utc"]:
+                    seen["replaced"] += 1  # the run ended before the kill: a complete log
+                    assert log.status == "ok" and log.spacecraft.alpha.truth.t_s[-1] == 43200.0
+                    earlier = log
+                else:
+                    assert np.array_equal(log.spacecraft.alpha.truth.t_s,
+                                          earlier.spacecraft.alpha.truth.t_s)
+    print("kill -9 outcomes:", seen, f"(a whole run: {full_s:.1f} s)")
+    assert seen["part"] >= 5  # most kills land mid-run (a check that the test kills at all)
+    run_scenario(_drift(repo_root), path)  # a later run removes what the killed ones left
+    assert _names(tmp_path) == ["k.h5"]
