@@ -223,3 +223,130 @@ def test_kill_9_at_random_moments_leaves_readable_logs(tmp_path, repo_root, fake
     assert seen["part"] >= 5  # most kills land mid-run (a check that the test kills at all)
     run_scenario(_drift(repo_root), path)  # a later run removes what the killed ones left
     assert _names(tmp_path) == ["k.h5"]
+
+
+# ------------------------------------------------------------------------------------------
+# write errors: disk full
+# ------------------------------------------------------------------------------------------
+
+
+def _run_cli(argv, capsys):
+    from sim.cli.main import main
+
+    code = main(argv)
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_write_error_ends_the_run_at_once_with_one_line(tmp_path, repo_root, fake_truth,
+                                                        monkeypatch, capsys):
+    """ENOSPC from the operating system on the third checkpoint (simulated: os.write raises)."""
+    real_write = os.write
+    calls = {"n": 0, "images": 0}
+
+    def write(fd, data):
+        if len(data) == 512:  # a header: one image per header (sim.log.container)
+            calls["images"] += 1
+        if calls["images"] >= 4:  # the image made at open, then checkpoints 1, 2 pass
+            raise OSError(errno.ENOSPC, "No space left on device")
+        return real_write(fd, data)
+
+    monkeypatch.setattr(container.os, "write", write)
+    import sim.loop.run
+    from sim.loop.options import RunOptions
+
+    monkeypatch.setattr(sim.loop.run, "RunOptions", lambda: RunOptions(checkpoint_cycles=1))
+    path = tmp_path / "full.h5"
+    code, out, err = _run_cli(["run", str(repo_root / "scenarios/demo_drift.toml"), "-o", str(path),
+                               "--set", "run.duration_days=1"], capsys)
+    lines = err.strip().splitlines()
+    assert code == 1 and len(lines) == 1, err
+    # the demo's cycle is 5400 s; the third checkpoint (after 3 cycles, t = 16200 s) failed:
+    # 271 chief samples (0 .. 16200 s every 60 s)
+    assert lines[0] == (f"covey: disk full writing {path} after 271 samples; the last checkpoint "
+                        f"is kept in {path}.part")
+    assert out.startswith("failed: ") and f"-> {path}.part" in out
+    assert calls["images"] == 4  # the run stopped at once: no further write was tried
+    assert _names(tmp_path) == ["full.h5.part"]  # the temporary removed, the lock released
+    log = read_log(f"{path}.part")
+    assert log.partial and log.meta["checkpoint_t_s"] == 10800.0
+
+
+def _tmpfs(folder: Path, size: str) -> None:
+    if os.geteuid() != 0:
+        pytest.skip("mounting a tmpfs needs root (it is allowed as root in CI)")
+    folder.mkdir()
+    r = subprocess.run(["mount", "-t", "tmpfs", "-o", f"size={size}", "tmpfs", str(folder)],
+                       capture_output=True, text=True)
+    if r.returncode != 0:
+        pytest.skip(f"mount -t tmpfs is not allowed here: {r.stderr.strip()}")
+
+
+@pytest.fixture
+def small_disk(tmp_path):
+    d = tmp_path / "disk"
+    _tmpfs(d, "300k")
+    yield d
+    subprocess.run(["umount", str(d)], check=False)
+
+
+def test_disk_full_on_a_small_tmpfs(small_disk, repo_root, fake_truth, capsys, monkeypatch):
+    """A 300 KiB tmpfs and default options: the first cycle's checkpoint fits, the complete log
+    (about 1.2 MB for 2 days) does not."""
+    monkeypatch.chdir(small_disk.parent)  # a crash file would land here
+    path = small_disk / "x.h5"
+    code, out, err = _run_cli(["run", str(repo_root / "scenarios/demo_drift.toml"), "-o", str(path),
+                               "--set", "run.duration_days=2"], capsys)
+    lines = err.strip().splitlines()
+    assert code == 1 and len(lines) == 1 and lines[0].startswith(f"covey: disk full writing {path}")
+    assert lines[0].endswith(f"the last checkpoint is kept in {path}.part")
+    assert _names(small_disk) == ["x.h5.part"]
+    log = read_log(f"{path}.part")
+    assert log.partial and log.meta["checkpoint_t_s"] == 5400.0  # the first cycle's
+    assert not list(small_disk.parent.glob("hs_err_pid*.log"))
+
+
+def test_concurrent_same_path_second_run_refused_first_intact(tmp_path, repo_root, fake_truth,
+                                                              capsys):
+    """Two runs on one output path: the second is refused (exit 2, one line) before it touches
+    a file; the first ends normally with a complete, readable log."""
+    import multiprocessing
+
+    path = tmp_path / "same.h5"
+    cfg = _drift(repo_root, 43200.0, **{"guidance.cycle_s": 1800.0})
+    child = multiprocessing.get_context("fork").Process(target=_fly_and_exit, args=(cfg, path))
+    child.start()
+    deadline = time.monotonic() + 60
+    while not (tmp_path / "same.h5.part").exists() and time.monotonic() < deadline:
+        time.sleep(0.01)
+    assert child.is_alive(), "the first run ended before the second could start"
+    code, out, err = _run_cli(["run", str(repo_root / "scenarios/demo_drift.toml"), "-o", str(path)],
+                              capsys)
+    child.join(60)
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
+    assert err.startswith(f"covey: {path} is being written by another covey run (writer ")
+    assert child.exitcode == 0
+    log = read_log(path)
+    assert log.status == "ok" and log.spacecraft.alpha.truth.t_s[-1] == 43200.0
+    assert _names(tmp_path) == ["same.h5"]
+
+
+@pytest.mark.orekit
+@pytest.mark.slow
+def test_disk_full_real_run_one_line_no_crash_file(tmp_path, repo_root):
+    """The reproducer: a four-spacecraft Orekit run onto a 300 KiB tmpfs (about 25 s)."""
+    disk = tmp_path / "disk"
+    _tmpfs(disk, "300k")
+    try:
+        env = {**os.environ, "COVEY_TRUTH_THREADS": "1", "PYTHONPATH": str(repo_root)}
+        r = subprocess.run([sys.executable, "-m", "sim.cli", "run",
+                            str(repo_root / "scenarios/formation_four.toml"), "-o",
+                            str(disk / "x.h5"), "--set", "run.duration_days=0.5", "-q"],
+                           cwd=tmp_path, env=env, capture_output=True, text=True, timeout=300)
+        assert r.returncode == 1, r.stderr
+        lines = r.stderr.strip().splitlines()
+        assert len(lines) == 1 and lines[0].startswith(f"covey: disk full writing {disk / 'x.h5'}")
+        assert not list(tmp_path.glob("hs_err_pid*.log")) and _names(disk) == ["x.h5.part"]
+        assert read_log(disk / "x.h5.part").partial
+    finally:
+        subprocess.run(["umount", str(disk)], check=False)
