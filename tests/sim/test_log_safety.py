@@ -350,3 +350,156 @@ def test_disk_full_real_run_one_line_no_crash_file(tmp_path, repo_root):
         assert read_log(disk / "x.h5.part").partial
     finally:
         subprocess.run(["umount", str(disk)], check=False)
+
+
+# ------------------------------------------------------------------------------------------
+# damaged files: byte flips, zeroed blocks, truncation
+# ------------------------------------------------------------------------------------------
+
+_READER = """
+import hashlib, sys
+import numpy as np
+sys.path.insert(0, sys.argv[1])
+from sim.errors import LogFormatError
+from sim.log.reader import read_log
+
+def digest(log):
+    h = hashlib.sha256()
+    for k in log.keys():
+        v = log.get(k)
+        h.update(k.encode() + repr(v if isinstance(v, (str, list)) else
+                                   (np.asarray(v).dtype.str, np.asarray(v).tobytes())).encode())
+    for k in sorted(log._attrs):
+        h.update(repr((k, sorted((a, repr(b)) for a, b in log._attrs[k].items()))).encode())
+    return h.hexdigest()
+
+for p in sys.argv[2:]:
+    try:
+        out = "read " + digest(read_log(p))
+    except LogFormatError as exc:
+        out = "refused " + str(exc).replace(chr(10), " ")
+    except BaseException as exc:
+        out = f"raw {type(exc).__name__}: {exc}".replace(chr(10), " ")
+    print(out, flush=True)
+"""
+
+
+def _mutate(data: bytes, seed: int) -> bytes:
+    """Seeded damage: one byte inverted, 8 random bytes changed, or 64 bytes zeroed."""
+    rng = np.random.default_rng(seed)
+    b = bytearray(data)
+    kind = seed % 3
+    if kind == 0:
+        b[int(rng.integers(len(b)))] ^= 0xFF
+    elif kind == 1:
+        for _ in range(8):
+            b[int(rng.integers(len(b)))] ^= int(rng.integers(1, 256))
+    else:
+        i = int(rng.integers(len(b) - 64))
+        b[i:i + 64] = bytes(64)
+    return bytes(b)
+
+
+def _read_all(repo_root, paths, timeout_s):
+    """read_log on each path in one child process under one deadline; one outcome per path
+    (a hang shows as the paths left without an outcome)."""
+    try:
+        r = subprocess.run([sys.executable, "-c", _READER, str(repo_root), *map(str, paths)],
+                           capture_output=True, text=True, timeout=timeout_s)
+        out = r.stdout
+    except subprocess.TimeoutExpired as exc:
+        out = (exc.stdout or b"").decode() if isinstance(exc.stdout, bytes) else (exc.stdout or "")
+    lines = out.splitlines()
+    return lines + ["hang"] * (len(paths) - len(lines))
+
+
+def _legacy_copy(src: Path, dst: Path) -> None:
+    """The same log without the covey header and checksums, as covey < 1.3 wrote it (h5py's
+    plain writer: signature at byte 0, no Fletcher-32)."""
+    with h5py.File(src, "r") as f, h5py.File(dst, "w") as g:
+        for k, v in f.attrs.items():
+            g.attrs[k] = v
+        for name in f:
+            f.copy(f[name], g, name=name)
+        g.attrs["schema_version"] = "1.2"
+
+
+@pytest.fixture
+def small_log(tmp_path, repo_root, fake_truth):
+    from sim.loop.run import run_scenario
+
+    return run_scenario(_drift(repo_root), tmp_path / "small.h5").path
+
+
+def test_50_byte_flips_clean_error_or_correct_data_never_a_hang(tmp_path, repo_root, small_log):
+    data = small_log.read_bytes()
+    paths = []
+    for seed in range(50):
+        p = tmp_path / f"m{seed}.h5"
+        p.write_bytes(_mutate(data, seed))
+        paths.append(p)
+    truth, *outs = _read_all(repo_root, [small_log, *paths], timeout_s=120)
+    assert truth.startswith("read ")
+    counts = {"same bytes, same data": 0, "refused": 0}
+    for p, out in zip(paths, outs):
+        assert out != "hang" and not out.startswith("raw "), (p.name, out)
+        if p.read_bytes() == data:  # 64 zeros written over zeros: nothing changed
+            assert out == truth
+            counts["same bytes, same data"] += 1
+        else:  # every change is caught by the header's CRC-32
+            assert out.startswith("refused ") and str(p) in out, (p.name, out)
+            counts["refused"] += 1
+    print("byte flips (covey 1.3 logs):", counts)
+    assert counts["refused"] >= 25
+
+
+def test_damaged_legacy_logs_give_clean_errors_and_never_hang(tmp_path, repo_root, small_log):
+    """Logs without the covey header (schema < 1.3): every read maps HDF5's errors to
+    LogFormatError, and the global-heap damage that hangs HDF5 is refused before HDF5 reads it."""
+    legacy = tmp_path / "legacy.h5"
+    _legacy_copy(small_log, legacy)
+    data = legacy.read_bytes()
+    paths = []
+    for seed in range(50):
+        p = tmp_path / f"l{seed}.h5"
+        p.write_bytes(_mutate(data, 1000 + seed))
+        paths.append(p)
+    # the reproduced hang: the 16-byte header of the 4th object of the first global heap
+    # collection zeroed (index 0, size 0: HDF5's collection parser then never advances)
+    hang = bytearray(data)
+    q = data.index(b"GCOL") + 16
+    for _ in range(3):
+        q += 16 + (int.from_bytes(hang[q + 8:q + 16], "little") + 7) // 8 * 8
+    hang[q:q + 16] = bytes(16)
+    (tmp_path / "hang.h5").write_bytes(bytes(hang))
+    paths.append(tmp_path / "hang.h5")
+    truth, *outs = _read_all(repo_root, [legacy, *paths], timeout_s=120)
+    assert truth.startswith("read ")
+    counts = {"refused": 0, "read": 0, "read, same data": 0}
+    for p, out in zip(paths, outs):
+        assert out != "hang" and not out.startswith("raw "), (p.name, out)
+        kind = out.split(" ")[0]
+        counts[kind] += 1
+        counts["read, same data"] += out == truth
+    assert outs[-1].startswith("refused ") and "empty object header" in outs[-1]
+    print("byte flips (logs without the covey header):", counts)
+    # and that file does hang plain h5py (the pre-check is what saves read_log)
+    code = ("import h5py, sys\nf = h5py.File(sys.argv[1], 'r')\n[f.attrs[k] for k in f.attrs]\n"
+            "f.visititems(lambda n, o: [o.attrs[k] for k in o.attrs])\n")
+    with pytest.raises(subprocess.TimeoutExpired):
+        subprocess.run([sys.executable, "-c", code, str(tmp_path / "hang.h5")],
+                       capture_output=True, timeout=5)
+
+
+def test_truncated_and_foreign_files_refused(tmp_path, small_log):
+    data = small_log.read_bytes()
+    for n, what in ((len(data) - 1, "cut short"), (600, "cut short"), (100, "cut short"),
+                    (0, "neither a covey")):
+        p = tmp_path / f"t{n}.h5"
+        p.write_bytes(data[:n])
+        with pytest.raises(LogFormatError, match=what):
+            read_log(p)
+    with pytest.raises(LogFormatError, match="cannot read the file"):
+        read_log(tmp_path / "missing.h5")
+    with pytest.raises(LogFormatError, match="cannot read the file"):
+        read_log(tmp_path)  # a folder
