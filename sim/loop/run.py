@@ -34,6 +34,7 @@ from sim.loop.engine import MEAN_OE_NAMES, ClosedLoopEngine, Engine, ProgressFn
 from sim.loop.options import RunOptions, frozen_heap
 from sim.scenario.config import RunConfig
 from sim.orekit.data import resolve_orekit_data
+from sim.orekit.messages import translate as translate_orekit
 
 __all__ = ["RunSummary", "run_scenario", "truth_backend", "git_commit", "MEAN_OE_NAMES"]
 
@@ -190,10 +191,13 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
         metrics = run_metrics(rec.file, cfg)
         write_metrics(rec, metrics)
     except BaseException as exc:  # noqa: BLE001 - recorded, then re-raised or returned
-        error = exc
-        status = "failed"
-        reason = f"{type(exc).__name__}: {exc}"
         tb = _traceback.format_exc()
+        # a known Orekit failure in covey's words, with the key to change (the original
+        # traceback stays in the log)
+        error = translate_orekit(exc, engine.t_s if engine is not None else 0.0,
+                                 ",".join(names)) or exc
+        status = "failed"
+        reason = f"{type(error).__name__}: {error}"
         if engine is not None:
             try:  # keep whatever the truth produced before the failure
                 engine.record_interval()
