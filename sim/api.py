@@ -12,7 +12,8 @@ Importing this module starts no JVM (the truth is booted by ``run_scenario``).
 from __future__ import annotations
 
 from sim.campaign.summary import CampaignSummary, read_summary
-from sim.errors import CoveyError, EnvironmentSetupError, LogFormatError, PropagationError, ScenarioError
+from sim.errors import (CoveyError, EnvironmentSetupError, LogFormatError, LogWriteError,
+                        PropagationError, ScenarioError)
 from sim.judge.metrics import DeputyMetrics, run_metrics
 from sim.log.diff import diff_logs
 from sim.log.reader import RunLog, read_log
@@ -24,4 +25,4 @@ from sim.scenario.reader import load_scenario, parse_scenario
 __all__ = ["load_scenario", "parse_scenario", "RunConfig", "run_scenario", "RunSummary", "RunOptions",
            "read_log", "RunLog", "diff_logs", "run_metrics", "DeputyMetrics", "read_summary",
            "CampaignSummary", "CoveyError", "ScenarioError", "EnvironmentSetupError",
-           "PropagationError", "LogFormatError"]
+           "PropagationError", "LogFormatError", "LogWriteError"]

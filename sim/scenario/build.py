@@ -452,9 +452,10 @@ def _geometry(t: Table | None, modes: Mapping[str, AttitudeModeConfig]) -> Geome
             raise t.err("panels", praw, "must be an array of tables ([[...geometry.panels]])")
         for k, p in enumerate(praw):
             pt = Table(p, f"{t.key('panels')}[{k}]", ("area_m2", "normal_body", "double_sided"), t.src)
-            normal = pt.vec("normal_body", 3, unit="unit vector, body axes")
-            if math.hypot(*normal) < 1e-9:
-                raise pt.err("normal_body", list(normal), "must be a non-zero vector (body axes)")
+            normal = pt.vec("normal_body", 3, lo=-1e6, hi=1e6, unit="a direction, body axes")
+            if not 1e-9 <= math.hypot(*normal) < math.inf:
+                raise pt.err("normal_body", list(normal), "must be a non-zero vector of finite "
+                             "length (body axes)")
             panels.append(PanelConfig(area_m2=pt.num("area_m2", lo=0.0, hi=1000.0, lo_open=True),
                                       normal_body=normal,
                                       double_sided=pt.boolean("double_sided", True)))
