@@ -14,7 +14,8 @@ boots it too).
 from __future__ import annotations
 
 from sim.campaign.summary import CampaignSummary, read_summary
-from sim.errors import CoveyError, EnvironmentSetupError, LogFormatError, PropagationError, ScenarioError
+from sim.errors import (CoveyError, EnvironmentSetupError, LogFormatError, LogWriteError,
+                        PropagationError, ScenarioError)
 from sim.gate import assert_requirements, check, compare, judge_log
 from sim.judge.metrics import DeputyMetrics, run_metrics
 from sim.lincov.compare import compare_with_summary
@@ -35,7 +36,7 @@ __all__ = ["load_scenario", "parse_scenario", "feasibility_warnings", "RunConfig
            "compare_with_summary", "judge_log", "compare", "check", "assert_requirements",
            "build_report", "ReportResult", "VerificationRow", "export_run",
            "CoveyError", "ScenarioError", "EnvironmentSetupError", "PropagationError",
-           "LogFormatError"]
+           "LogFormatError", "LogWriteError"]
 
 # The report and export names load matplotlib: imported on first use (PEP 562), not with sim.api.
 _LAZY = {"build_report": "sim.report.build", "ReportResult": "sim.report.build",

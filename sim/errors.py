@@ -5,6 +5,7 @@ and never shows a traceback for them.
 
 from __future__ import annotations
 
+import errno as _errno
 from typing import Any
 
 
@@ -93,3 +94,36 @@ class LogFormatError(CoveyError):
     def __init__(self, path: str, key: str, detail: str):
         self.path, self.key, self.detail = path, key, detail
         super().__init__(f"{path}: {key}: {detail}")
+
+
+class LogWriteError(CoveyError):
+    """The run log could not be written (disk full, quota, I/O error); the run ends at once.
+
+    Attributes
+    ----------
+    path : str
+        The run log being written.
+    errno : int or None
+    n_samples : int
+        Truth samples (of the chief) recorded when the write failed.
+    kept : str
+        The last checkpoint left readable on disk (``<path>.part``), or "" when none is.
+    detail : str
+        The operating system's message.
+    """
+
+    _WHAT = {_errno.ENOSPC: "disk full", _errno.EDQUOT: "disk quota exceeded",
+             _errno.EIO: "I/O error", _errno.EFBIG: "file too large",
+             _errno.EROFS: "read-only file system"}
+
+    def __init__(self, path: str, errno: int | None, detail: str, n_samples: int = 0,
+                 kept: str = ""):
+        self.path, self.errno, self.detail, self.n_samples, self.kept = (
+            path, errno, detail, int(n_samples), kept)
+        super().__init__(path, errno, detail, n_samples, kept)
+
+    def __str__(self) -> str:
+        what = self._WHAT.get(self.errno or -1, f"write error ({self.detail})")
+        keep = (f"; the last checkpoint is kept in {self.kept}" if self.kept
+                else "; nothing readable was kept")
+        return f"{what} writing {self.path} after {self.n_samples} samples{keep}"

@@ -68,6 +68,9 @@ def parse_set(items: Sequence[str] | None) -> dict[str, Any]:
             v = _toml.loads(f"v = {value}")["v"]
         except _toml.TOMLDecodeError:
             v = value
+        except RecursionError:
+            raise UsageError(f"--set {key.strip()}=...: the value is nested too deeply (a "
+                             "scenario value needs at most a few levels)") from None
         out[key.strip()] = v
     return out
 

@@ -66,18 +66,42 @@ class BufferedLog:
         pending, self._pending, self.n_pending = self._pending, {}, 0
         self._write(pending)
 
-    def write_async(self, executor) -> None:
+    def write_async(self, executor, checkpoint: tuple[float, int] | None = None) -> None:
         """Hand the queued rows to ``executor`` (one worker thread) to be appended and flushed
         there, while the caller goes on queueing; h5py releases the GIL while it compresses and
-        writes. Any other use of the file waits for it first (:meth:`wait`)."""
+        writes. Any other use of the file waits for it first (:meth:`wait`).
+
+        ``checkpoint = (t_s, n_samples)``: then also write a checkpoint there
+        (:meth:`RunRecorder.checkpoint`, with that progress); its error, if any, is raised by the
+        next :meth:`check` or :meth:`wait`."""
         self.wait()
         pending, self._pending, self.n_pending = self._pending, {}, 0
 
         def job():
             self._write(pending)
             self.rec.flush()
+            if checkpoint is not None:
+                self.rec.note_progress(*checkpoint)
+                self.rec.checkpoint()
 
         self._inflight = executor.submit(job)
+
+    def checkpoint(self, t_s: float, n_samples: int) -> bool:
+        """Write the queued rows, then a checkpoint (:meth:`RunRecorder.checkpoint`)."""
+        self.write()
+        self.rec.note_progress(t_s, n_samples)
+        return self.rec.checkpoint()
+
+    def check(self) -> None:
+        """Raise the error of a finished :meth:`write_async` now (a write error ends the run at
+        once); a job still running is left to run."""
+        fut = self._inflight
+        if fut is not None and fut.done():
+            self.wait()
+
+    def note_progress(self, t_s: float, n_samples: int) -> None:
+        """:meth:`RunRecorder.note_progress` (without writing the queue)."""
+        self.rec.note_progress(t_s, n_samples)
 
     def wait(self) -> None:
         """Wait for a :meth:`write_async` (its error, if any, is raised here)."""

@@ -75,6 +75,9 @@ class Engine:
         self.rec = rec if isinstance(rec, BufferedLog) else BufferedLog(rec)
         self._log_written_t_s = 0.0
         self._log_written_wall = time.perf_counter()
+        self._checkpoint_wall = -np.inf  # the first recorded cycle is checkpointed
+        self._cycles_since_checkpoint = 0
+        self._t_logged_s = 0.0
         # HDF5 compression and writing of the buffered rows on a thread of its own
         self._pool = ThreadPoolExecutor(max_workers=1, thread_name_prefix="covey-log") \
             if self.options.log_thread else None
@@ -153,7 +156,9 @@ class Engine:
     # -- recording ---------------------------------------------------------------------------
     def record_interval(self) -> None:
         """Drain the truth world's buffers into the log: samples (+ mean elements and mean ROE),
-        executed impulses, events."""
+        executed impulses, events; write the buffered rows and checkpoint the log when due
+        (:class:`sim.loop.options.RunOptions` ``log_write_*``, ``checkpoint_*``)."""
+        self.rec.check()  # a failed background write (disk full, ...) ends the run here
         samples = self.world.drain_samples()
         chief_mean = None
         chief_t = None
@@ -176,6 +181,7 @@ class Engine:
             if name == self.chief:
                 chief_mean, chief_t = mean, t
                 self.n_samples += len(t)
+                self._t_logged_s = float(t[-1])
                 continue
             roe = np.full((len(t), 6), np.nan)
             if chief_mean is not None:
@@ -206,14 +212,26 @@ class Engine:
                             kind=[str(e.get("kind", "")) for e in events],
                             detail=[str(e.get("detail", "")) for e in events])
         now = time.perf_counter()
-        if (self.t_s - self._log_written_t_s >= self.options.log_write_sim_s - 1e-6
-                or now - self._log_written_wall >= self.options.log_write_wall_s):
+        opts = self.options
+        self._cycles_since_checkpoint += 1
+        checkpoint = (now - self._checkpoint_wall >= opts.checkpoint_wall_s
+                      or (opts.checkpoint_cycles > 0
+                          and self._cycles_since_checkpoint >= opts.checkpoint_cycles))
+        if (checkpoint or self.t_s - self._log_written_t_s >= opts.log_write_sim_s - 1e-6
+                or now - self._log_written_wall >= opts.log_write_wall_s):
+            progress = (self._t_logged_s, self.n_samples)
             if self._pool is None:
-                self.rec.flush()
+                if checkpoint:
+                    self.rec.checkpoint(*progress)
+                else:
+                    self.rec.flush()
             else:  # compressed and written on the writer thread
-                self.rec.write_async(self._pool)
+                self.rec.write_async(self._pool, checkpoint=progress if checkpoint else None)
             self._log_written_t_s = self.t_s
             self._log_written_wall = now
+            if checkpoint:
+                self._checkpoint_wall = now
+                self._cycles_since_checkpoint = 0
 
     def write_judge_counts(self) -> None:
         """``/spacecraft/<name>/mean_oe@n_unconverted``: truth samples the judge's mean theory

@@ -32,6 +32,12 @@ class RunOptions:
         The buffered rows are written after at most this much simulated time, s.
     log_write_wall_s : float
         ... or after at most this much wall-clock time, s (whichever comes first).
+    checkpoint_wall_s : float
+        The log is checkpointed (written whole to ``<log>.part``, readable, status ``running``)
+        after the first guidance cycle and then after at most this much wall-clock time, s;
+        0: after every cycle.
+    checkpoint_cycles : int
+        ... and also after every this many guidance cycles; 0: by wall time only.
     batched_density : bool
         Logged NRLMSISE-00 density in batch by the reference code (pymsis) where the set-up
         allows it; False: Orekit per sample.
@@ -47,6 +53,8 @@ class RunOptions:
     log_thread: bool = True
     log_write_sim_s: float = 86400.0
     log_write_wall_s: float = 30.0
+    checkpoint_wall_s: float = 60.0
+    checkpoint_cycles: int = 0
     batched_density: bool = True
     java_sampler: bool = True
     truth_threads: int | None = None

@@ -3,10 +3,14 @@
 :func:`run_scenario` is the entry point (``covey run`` calls it). The cycle loop lives in
 :mod:`sim.loop.engine` (free drift :class:`Engine`, closed loop :class:`ClosedLoopEngine`); the
 engine's appends are buffered in memory and written in batches (:class:`sim.log.buffer.BufferedLog`,
-at least once per simulated day and every 30 s of wall time, and at the end or on failure).
+at least once per simulated day and every 30 s of wall time, and at the end or on failure), and
+the log is checkpointed to ``<log>.part`` after the first cycle and then about every minute
+(``RunOptions.checkpoint_wall_s``, ``checkpoint_cycles``; :mod:`sim.log.recorder`).
 
 Any exception ends the run with ``status = "failed"``: the reason and traceback are stored in the
-log, the data recorded so far are kept, and the file is renamed to its final name as usual.
+log, the data recorded so far are kept, and the log is written under its final name as usual;
+except after a write error (:class:`sim.errors.LogWriteError`, e.g. a full disk), which ends the
+run at once and leaves the last checkpoint as it was (nothing more is written).
 """
 
 from __future__ import annotations
@@ -21,7 +25,7 @@ import numpy as np
 
 from guidance.interface import GuidanceInputError
 
-from sim.errors import CoveyError, EnvironmentSetupError
+from sim.errors import CoveyError, EnvironmentSetupError, LogWriteError
 from sim.judge.metrics import cycles_text, read_cycles, run_metrics, write_metrics
 from sim.log.buffer import BufferedLog
 from sim.log.provenance import git_commit, write_boot_meta, write_start_meta
@@ -30,6 +34,7 @@ from sim.loop.engine import MEAN_OE_NAMES, ClosedLoopEngine, Engine, ProgressFn
 from sim.loop.options import RunOptions, frozen_heap
 from sim.scenario.config import RunConfig
 from sim.orekit.data import resolve_orekit_data
+from sim.orekit.messages import translate as translate_orekit
 
 __all__ = ["RunSummary", "run_scenario", "truth_backend", "git_commit", "MEAN_OE_NAMES"]
 
@@ -185,7 +190,8 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     cfg : RunConfig
         From :func:`sim.scenario.reader.load_scenario`.
     out_path : str or path-like
-        The run log (``.h5``); written as ``out_path.part`` and renamed when closed.
+        The run log (``.h5``); checkpoints go to ``out_path.part``, the complete log replaces
+        ``out_path`` at the end (:mod:`sim.log.recorder`).
     progress : callable, optional
         ``progress(t_s, duration_s)``, called once when the truth is ready and after every
         guidance cycle.
@@ -204,7 +210,8 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     Raises
     ------
     EnvironmentSetupError
-        The log file cannot be created, or the Orekit data path does not exist.
+        The log file cannot be created, another run is writing the same ``out_path``, or the
+        Orekit data path does not exist.
     """
     out = Path(out_path)
     opts = options if options is not None else RunOptions()
@@ -247,10 +254,13 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
         if metrics:
             rec.write_attrs("meta", targets_met=all(m.target_met for m in metrics))
     except BaseException as exc:  # noqa: BLE001 - recorded, then re-raised or returned
-        error = exc
-        status = "failed"
-        reason = f"{type(exc).__name__}: {exc}"
         tb = _traceback.format_exc()
+        # a known Orekit failure in covey's words, with the key to change (the original
+        # traceback stays in the log)
+        error = translate_orekit(exc, engine.t_s if engine is not None else 0.0,
+                                 ",".join(names)) or exc
+        status = "failed"
+        reason = f"{type(error).__name__}: {error}"
         if engine is not None:
             try:  # keep whatever the truth produced before the failure
                 engine.record_interval()
@@ -277,7 +287,16 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
             rec.write_attrs("meta", wall_time_s=wall,
                             t_end_s=engine.t_s if engine is not None else 0.0)
         finally:
-            rec.close(status, reason, tb)
+            if engine is not None:
+                rec.note_progress(engine.t_s, engine.n_samples)
+            try:
+                out = rec.close(status, reason, tb)  # the .part kept after a write error
+            except LogWriteError as exc:  # the final log could not be written
+                out = rec.part_path if exc.kept else out
+                if not isinstance(error, (KeyboardInterrupt, SystemExit)):
+                    error, status, reason = exc, "failed", str(exc)
+    if isinstance(error, LogWriteError):
+        reason = str(error)
     if isinstance(error, (KeyboardInterrupt, SystemExit)):
         raise error
     final = dict(engine.final_roe) if engine else {}

@@ -128,15 +128,33 @@ def resolve_orekit_data(explicit: str | os.PathLike | None = None,
     return OrekitDataChoice(os.path.abspath(str(bundled_data_dir())), BUNDLED_LABEL)
 
 
-def _names_in(path: str) -> set[str]:
+MAX_SCAN_ENTRIES = 20000
+""":func:`check_data_folder` looks at most this many folder entries for the leap-second file
+(an Orekit data folder holds a few hundred; a home folder given by mistake is not crawled)."""
+
+MAX_SCAN_DEPTH = 4
+"""... and at most this many folder levels below the given path."""
+
+
+def _has_any(path: str, wanted: tuple[str, ...]) -> bool | None:
+    """Whether a file of one of these names is in the folder or zip (True/False), or None when
+    the bounded search (:data:`MAX_SCAN_ENTRIES`, :data:`MAX_SCAN_DEPTH`) ended first."""
     if os.path.isdir(path):
-        names: set[str] = set()
-        for _root, dirs, files in os.walk(path):
-            dirs[:] = [d for d in dirs if d not in _SKIP_DIRS]
-            names.update(files)
-        return names
+        seen = 0
+        depth0 = path.rstrip(os.sep).count(os.sep)
+        for root, dirs, files in os.walk(path):
+            if any(n in wanted for n in files):
+                return True
+            seen += len(files) + len(dirs)
+            if root.count(os.sep) - depth0 >= MAX_SCAN_DEPTH:
+                dirs[:] = []
+                continue
+            dirs[:] = sorted(d for d in dirs if d not in _SKIP_DIRS and not d.startswith("."))
+            if seen > MAX_SCAN_ENTRIES:
+                return None
+        return False
     with zipfile.ZipFile(path) as z:
-        return {n.rsplit("/", 1)[-1] for n in z.namelist()}
+        return any(n.rsplit("/", 1)[-1] in wanted for n in z.namelist())
 
 
 def check_data_folder(path: str, source: str = "") -> None:
@@ -153,7 +171,16 @@ def check_data_folder(path: str, source: str = "") -> None:
         raise EnvironmentSetupError(f"Orekit data path {path!r} does not exist", fix)
     if not os.path.isdir(path) and not zipfile.is_zipfile(path):
         raise EnvironmentSetupError(f"Orekit data path {path!r} is neither a folder nor a zip archive", fix)
-    if not any(n in _names_in(path) for n in LEAP_SECOND_FILES):
+    try:
+        found = _has_any(path, LEAP_SECOND_FILES)
+    except (OSError, zipfile.BadZipFile) as exc:
+        raise EnvironmentSetupError(f"Orekit data path {path!r} cannot be read: {exc}", fix) from None
+    if found is None:
+        raise EnvironmentSetupError(
+            f"Orekit data path {path!r} is not an Orekit data folder: no leap-second file "
+            f"({' or '.join(LEAP_SECOND_FILES)}) among its first {MAX_SCAN_ENTRIES} entries "
+            f"within {MAX_SCAN_DEPTH} folder levels", fix)
+    if not found:
         raise EnvironmentSetupError(
             f"Orekit data path {path!r} holds no leap-second file ({' or '.join(LEAP_SECOND_FILES)}): "
             "it is not an Orekit data folder", fix)
@@ -273,7 +300,26 @@ class SolarSpan:
         return iter((self.first, self.last, self.last_observed, self.label))
 
 
+_SPAN_CACHE: dict[tuple, "SolarSpan"] = {}
+
+
 def _cssi_span(label: str, reader: Callable[[], list[str]]) -> SolarSpan:
+    """The span of one CSSI file, kept per file name, size and modification time (a 20 000-line
+    file takes about 0.25 s to scan; validate and describe both ask)."""
+    try:
+        st = os.stat(label.split("!", 1)[0])
+        key = (label, st.st_size, st.st_mtime_ns)
+    except OSError:
+        key = None
+    if key is not None and key in _SPAN_CACHE:
+        return _SPAN_CACHE[key]
+    span = _cssi_span_read(label, reader)
+    if key is not None:
+        _SPAN_CACHE[key] = span
+    return span
+
+
+def _cssi_span_read(label: str, reader: Callable[[], list[str]]) -> SolarSpan:
     try:
         sections = cssi_sections(reader())
     except OSError as exc:

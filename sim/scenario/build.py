@@ -41,13 +41,16 @@ from sim.scenario.config import (
     ThrusterConfig,
 )
 from guidance.settings import type_name
-from sim.errors import ScenarioError
-from sim.orekit.data import parse_epoch, resolve_orekit_data, solar_activity_span
+from sim.errors import EnvironmentSetupError, ScenarioError
+from sim.orekit.data import (BUNDLED_LABEL, check_data_folder, parse_epoch, resolve_orekit_data,
+                             solar_activity_span)
 
 
 from sim.scenario.tables import MISSING, Table
 
-__all__ = ['build', 'sun_synchronous_inclination_deg', 'check_solar_span', 'PRESET_DEFAULTS', 'law_settings']
+__all__ = ['build', 'sun_synchronous_inclination_deg', 'check_solar_span', 'PRESET_DEFAULTS', 'law_settings',
+           'mean_theory_inclination_problem', 'EH_EQUATORIAL_SIN', 'EH_CRITICAL_SIN2_BAND',
+           'initial_deceleration_mps2', 'MAX_INITIAL_DECELERATION_MPS2']
 
 
 SOLAR_YEAR_DAYS = 365.2422
@@ -68,6 +71,97 @@ PRESET_DEFAULTS: dict[str, dict[str, Any]] = {
 
 JB2008_LAG_DAYS = 5.0
 """JB2008 uses solar indices lagged by up to 5 days (the SOLFSMY.TXT header)."""
+
+EH_EQUATORIAL_SIN = 1.0e-5
+"""Orekit's Eckstein-Hechler mean theory refuses a mean inclination with sin i below this
+("almost equatorial orbit"): i within 1e-5 rad (0.000573 deg) of 0 or 180 deg. Measured on
+Orekit 13 (``EcksteinHechlerTheory.meanToOsculating``, bisection to 1e-15 deg)."""
+
+EH_CRITICAL_SIN2_BAND = 1.0e-3
+"""... and a mean inclination with |sin^2 i - 4/5| below this ("almost critically inclined
+orbit"): i in [63.3634, 63.5066] or [116.4934, 116.6366] deg around the critical inclinations
+63.4349 and 116.5651 deg (measured as above)."""
+
+MAX_INITIAL_DECELERATION_MPS2 = 1.0
+"""Refused: a spacecraft whose drag or radiation-pressure deceleration at its initial perigee
+exceeds this (m/s^2). Orekit's integrator fails at t = 0 ("hyperbolic orbits cannot be
+handled") at about 10 m/s^2 (measured: a 4 kg, 0.034 m^2 bus at 80 km, or a 1e-6 kg one at
+475 km); at 1 m/s^2 an orbit loses over 5 km/s per revolution."""
+
+# Exponential atmosphere: base altitude km, density kg/m^3, scale height km (Vallado,
+# Fundamentals of Astrodynamics and Applications, 4th ed., 2013, Table 8-4) [memory]
+_EXP_ATMOSPHERE = (
+    (0, 1.225, 7.249), (25, 3.899e-2, 6.349), (30, 1.774e-2, 6.682), (40, 3.972e-3, 7.554),
+    (50, 1.057e-3, 8.382), (60, 3.206e-4, 7.714), (70, 8.770e-5, 6.549), (80, 1.905e-5, 5.799),
+    (90, 3.396e-6, 5.382), (100, 5.297e-7, 5.877), (110, 9.661e-8, 7.263),
+    (120, 2.438e-8, 9.473), (130, 8.484e-9, 12.636), (140, 3.845e-9, 16.149),
+    (150, 2.070e-9, 22.523), (180, 5.464e-10, 29.740), (200, 2.789e-10, 37.105),
+    (250, 7.248e-11, 45.546), (300, 2.418e-11, 53.628), (350, 9.518e-12, 53.298),
+    (400, 3.725e-12, 58.515), (450, 1.585e-12, 60.828), (500, 6.967e-13, 63.822),
+    (600, 1.454e-13, 71.835), (700, 3.614e-14, 88.667), (800, 1.170e-14, 124.64),
+    (900, 5.245e-15, 181.05), (1000, 3.019e-15, 268.00))
+
+LOW_PERIGEE_KM = 120.0
+"""Below this initial perigee altitude a too-large deceleration is reported against the orbit's
+key, above it against the bus mass."""
+
+SOLAR_PRESSURE_NPM2 = 4.56e-6
+"""Solar radiation pressure at 1 AU on an absorbing surface, N/m^2 (1361 W/m^2 / c; Vallado
+2013, section 8.6.4 [memory])."""
+
+
+def mean_theory_inclination_problem(i_deg: float) -> str | None:
+    """Why Orekit's Eckstein-Hechler mean theory refuses a mean inclination, or None.
+
+    The bands are :data:`EH_EQUATORIAL_SIN` and :data:`EH_CRITICAL_SIN2_BAND`.
+    """
+    s = math.sin(math.radians(i_deg))
+    if abs(s) < EH_EQUATORIAL_SIN:
+        return ("near-equatorial: the Eckstein-Hechler mean theory needs i at least 0.000573 deg "
+                "(1e-5 rad) away from 0 and 180 deg")
+    if abs(s * s - 0.8) < EH_CRITICAL_SIN2_BAND:
+        return ("near the critical inclination: the Eckstein-Hechler mean theory refuses i in "
+                "[63.3634, 63.5066] and [116.4934, 116.6366] deg")
+    return None
+
+
+def _density_kgpm3(alt_km: float) -> float:
+    """Exponential-atmosphere density (``_EXP_ATMOSPHERE``), kg/m^3; below 0 km as at 0 km."""
+    h = max(0.0, alt_km)
+    base = _EXP_ATMOSPHERE[0]
+    for row in _EXP_ATMOSPHERE:
+        if row[0] <= h:
+            base = row
+    h0, rho0, scale = base
+    return rho0 * math.exp(-(h - h0) / scale)
+
+
+def _largest_area_m2(bus: BusConfig) -> float:
+    """An upper bound of the bus's cross-section over its modes, m^2 (box: the largest projected
+    area of the box, sqrt((yz)^2 + (xz)^2 + (xy)^2), plus every panel)."""
+    g = bus.geometry
+    if g.kind == "table":
+        return max([*g.area_by_mode_m2.values(), g.srp_area_m2 or 0.0, 0.0])
+    x, y, z = g.box_x_m, g.box_y_m, g.box_z_m
+    return math.sqrt((y * z) ** 2 + (x * z) ** 2 + (x * y) ** 2) + sum(p.area_m2 for p in g.panels)
+
+
+def initial_deceleration_mps2(bus: BusConfig, perigee_km: float, a_m: float,
+                              env: EnvironmentConfig) -> tuple[float, str]:
+    """The larger of the drag and radiation-pressure decelerations at the initial perigee, m/s^2,
+    and which it is: drag with the exponential atmosphere (mean solar activity), the bus's ``cd``
+    and largest area, the circular speed at that radius; SRP with :data:`SOLAR_PRESSURE_NPM2`,
+    ``cr`` and the same area. A screening estimate against
+    :data:`MAX_INITIAL_DECELERATION_MPS2`, not the truth's force model."""
+    area = _largest_area_m2(bus)
+    r = R_EARTH_M + perigee_km * 1000.0
+    drag = 0.0
+    if env.atmosphere != "none":
+        v2 = MU_EARTH_M3PS2 / max(r, 1.0) * max(0.0, 2.0 - r / a_m)  # vis-viva at perigee
+        drag = 0.5 * _density_kgpm3(perigee_km) * v2 * bus.cd * area / bus.mass_kg
+    srp = SOLAR_PRESSURE_NPM2 * bus.cr * area / bus.mass_kg if env.srp else 0.0
+    return (drag, "drag") if drag >= srp else (srp, "solar radiation pressure")
+
 
 _NAME_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_-]{0,63}$")
 _RUN_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,127}$")
@@ -168,6 +262,20 @@ def build(raw: dict, src: str, base_dir: Path, stem: str) -> RunConfig:
             raise ScenarioError(key, round(perigee_km, 3),
                                 f"perigee altitude must be above events.min_altitude_km = "
                                 f"{events.min_altitude_km:g} km", path=src)
+        acc, what = initial_deceleration_mps2(sc.bus, perigee_km, a_m, environment)
+        if not acc <= MAX_INITIAL_DECELERATION_MPS2:
+            low = perigee_km < LOW_PERIGEE_KM  # name the orbit when it is the cause
+            raise ScenarioError(
+                key if low else f"bus.{sc.bus.name}.mass_kg",
+                round(perigee_km, 3) if low else sc.bus.mass_kg,
+                f"{sc.name}'s {what} deceleration at its initial perigee ({perigee_km:.1f} km) "
+                f"would be about {acc:.3g} m/s^2, over {MAX_INITIAL_DECELERATION_MPS2:g} m/s^2 "
+                "(the truth propagation fails at t = 0): raise the orbit, raise "
+                f"bus.{sc.bus.name}.mass_kg or lower the bus's areas", path=src)
+        i_deg, ikey = _sc_inclination(sc, chief, key)
+        why = mean_theory_inclination_problem(i_deg)
+        if why:
+            raise ScenarioError(ikey, round(i_deg, 9), f"mean inclination {why}", path=src)
 
     guidance = _guidance(top.table("guidance", ("law", "cycle_s", "settings")))
     navigation = _navigation(top.table("navigation", ("perfect", "absolute", "relative")))
@@ -351,9 +459,10 @@ def _geometry(t: Table | None, modes: Mapping[str, AttitudeModeConfig]) -> Geome
             raise t.err("panels", praw, "must be an array of tables ([[...geometry.panels]])")
         for k, p in enumerate(praw):
             pt = Table(p, f"{t.key('panels')}[{k}]", ("area_m2", "normal_body", "double_sided"), t.src)
-            normal = pt.vec("normal_body", 3, unit="unit vector, body axes")
-            if math.hypot(*normal) < 1e-9:
-                raise pt.err("normal_body", list(normal), "must be a non-zero vector (body axes)")
+            normal = pt.vec("normal_body", 3, lo=-1e6, hi=1e6, unit="a direction, body axes")
+            if not 1e-9 <= math.hypot(*normal) < math.inf:
+                raise pt.err("normal_body", list(normal), "must be a non-zero vector of finite "
+                             "length (body axes)")
             panels.append(PanelConfig(area_m2=pt.num("area_m2", lo=0.0, hi=1000.0, lo_open=True),
                                       normal_body=normal,
                                       double_sided=pt.boolean("double_sided", True)))
@@ -419,6 +528,15 @@ def _sc_a_e(sc: SpacecraftConfig, chief: SpacecraftConfig) -> tuple[float, float
     ex = o.e * math.cos(math.radians(o.argp_deg)) + sc.roe_m[2] / a
     ey = o.e * math.sin(math.radians(o.argp_deg)) + sc.roe_m[3] / a
     return a + sc.roe_m[0], math.hypot(ex, ey)
+
+
+def _sc_inclination(sc: SpacecraftConfig, chief: SpacecraftConfig, key: str) -> tuple[float, str]:
+    """Mean inclination of a spacecraft, deg, and the key that sets it."""
+    if sc.orbit is not None:
+        o = sc.orbit
+        return o.i_deg, (f"{key}.i_deg" if not o.sun_synchronous else f"{key}.sun_synchronous")
+    assert chief.orbit is not None and sc.roe_m is not None
+    return chief.orbit.i_deg + math.degrees(sc.roe_m[4] / chief.orbit.a_m), f"{key}[4] (dix)"
 
 
 def _spacecraft(t: Table, buses: Mapping[str, BusConfig], *, is_chief: bool, duration_s: float,
@@ -581,8 +699,30 @@ def _iso(t: _dt.datetime) -> str:
     return t.strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
+def check_orekit_data(data, src: str) -> None:
+    """Refuse an Orekit data path that is not an Orekit data folder or zip (no leap-second file),
+    as the run's boot would, naming ``run.orekit_data`` when the scenario gave it."""
+    if data.label == BUNDLED_LABEL:
+        return
+    try:
+        check_data_folder(data.path, data.label)
+    except EnvironmentSetupError as exc:
+        if data.label != "[run] orekit_data":
+            raise
+        raise ScenarioError("run.orekit_data", data.path, exc.what, path=src) from None
+
+
 def check_solar_span(cfg: RunConfig, raw: dict, src: str, base_dir: Path, orekit_data) -> None:
+    """Refuse an epoch or an end outside what Orekit serves of the solar-activity data.
+
+    Orekit's CSSI data (``CssiSpaceWeatherData.getMaxDate``) end at 00:00 UTC of the file's last
+    day, its JB2008 data (``JB2008SpaceEnvironmentData.getMaxDate``) at 12:00 UTC of the last day
+    (the files' Julian dates); one second later the density model raises "no solar activity
+    available" (measured with Orekit 13 on the bundled files). The Orekit data path itself must
+    be an Orekit data folder (:func:`check_orekit_data`).
+    """
     data = resolve_orekit_data(orekit_data, cfg.orekit_data)
+    check_orekit_data(data, src)
     span = solar_activity_span(cfg.environment, data.path)
     if span is None:
         return
@@ -591,10 +731,11 @@ def check_solar_span(cfg: RunConfig, raw: dict, src: str, base_dir: Path, orekit
     t1 = t0 + _dt.timedelta(seconds=cfg.duration_s)
     history = JB2008_LAG_DAYS if cfg.environment.atmosphere == "jb2008" else AP_HISTORY_DAYS
     earliest = _dt.datetime.combine(first, _dt.time(tzinfo=_dt.timezone.utc)) + _dt.timedelta(days=history)
-    latest = _dt.datetime.combine(last, _dt.time(tzinfo=_dt.timezone.utc)) + _dt.timedelta(days=1)
+    latest = _dt.datetime.combine(last, _dt.time(tzinfo=_dt.timezone.utc)) + _dt.timedelta(
+        hours=12 if cfg.environment.atmosphere == "jb2008" else 0)  # what Orekit serves
     span_txt = (f"the solar-activity data ({label}) cover {first.isoformat()} to "
                 f"{last.isoformat()}")
-    if t0 < earliest or t0 >= latest:
+    if t0 < earliest or t0 >= latest:  # (a run has a positive duration: it must end by latest)
         raise ScenarioError("run.epoch_utc", cfg.epoch_utc,
                             f"{span_txt}; the epoch must be in [{_iso(earliest)}, "
                             f"{_iso(latest)}) ({history:g} days of history needed "

@@ -112,6 +112,9 @@ def parse_scenario(text: str, path: str = "", overrides: Mapping[str, Any] | Non
         raw = _toml.loads(text)
     except _toml.TOMLDecodeError as exc:
         raise ScenarioError("(file)", None, f"not valid TOML: {exc}", path=src) from None
+    except RecursionError:
+        raise ScenarioError("(file)", None, "not readable: arrays or tables nested too deeply "
+                            "(a scenario needs at most a few levels)", path=src) from None
     if overrides:
         for k, v in overrides.items():
             _apply_override(raw, k, v, src)

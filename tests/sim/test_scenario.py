@@ -325,9 +325,11 @@ def test_epoch_outside_user_data_folder_and_zip(tmp_path, monkeypatch):
     folder = tmp_path / "od" / "CSSI-Space-Weather-Data"
     folder.mkdir(parents=True)
     (folder / "SpaceWeather-All-v1.2.txt").write_text(_mini_cssi(dt.date(2020, 1, 1), 8, 4))
+    (tmp_path / "od" / "tai-utc.dat").write_text("")  # what makes it an Orekit data folder
     zpath = tmp_path / "od.zip"
     with zipfile.ZipFile(zpath, "w") as zf:
         zf.write(folder / "SpaceWeather-All-v1.2.txt", "data/SW-All-v1.2.txt")
+        zf.write(tmp_path / "od" / "tai-utc.dat", "data/tai-utc.dat")
     base = MINIMAL.replace("2024-05-01T00:00:00Z", "2020-01-05T00:00:00Z")
     for od in (tmp_path / "od", zpath):
         cfg = parse_scenario(base, "x.toml", orekit_data=str(od))  # 1 Jan + 3 d <= 5 Jan, ends 6 Jan
