@@ -6,8 +6,8 @@ one log per law, and a closed stdout does not turn a run into a failure.
 Sources: the target verdict, the table and the exit codes are covey's own contract (common
 practice, no source). The initial along-track separation of a deputy with mean ROE
 (0, a dlambda, 0, 0, 0, 0) on a circular chief orbit is a dlambda to first order (linear mapping
-of quasi-nonsingular ROE to RTN position, D'Amico, PhD thesis TU Delft 2010, eq. for delta r_T
-[memory]). Differential drag acts in the orbit plane and cannot change the relative inclination
+of quasi-nonsingular ROE to RTN position, "Autonomous Formation Flying in Low Earth Orbit",
+PhD thesis, TU Delft, 2010, eq. for delta r_T [memory]). Differential drag acts in the orbit plane and cannot change the relative inclination
 (common practice, no source). A write to a pipe whose reader has closed fails with EPIPE (POSIX
 write(2)); Python ignores SIGPIPE and raises BrokenPipeError (Python docs, signal module notes).
 """
@@ -186,7 +186,7 @@ def test_feasibility_warnings_out_of_plane_keep_out_and_deadline():
 
 def test_initial_separation_along_track():
     """A pure along-track offset a dlambda = 30 m on a circular chief is 30 m apart (linear ROE
-    mapping, D'Amico 2010 [memory]; second-order terms are ~ (30 m)^2 / a, far below 0.1 m)."""
+    mapping, the thesis cited above [memory]; second-order terms are ~ (30 m)^2 / a, far below 0.1 m)."""
     from sim.scenario.feasibility import initial_positions_eci_m
 
     txt = NO_THRUSTER.replace("roe_m = [0.0, 500.0, 0.0, 100.0, 0.0, 100.0]",
