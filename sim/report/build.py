@@ -20,10 +20,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Sequence
 
-import h5py
 
 from sim import __version__
-from sim.errors import LogFormatError, ScenarioError
+from sim.errors import ScenarioError
 from sim.report.figures import FigureSpec, Skipped
 from sim.report.html import render_page
 from sim.report.style import PNG_DPI, label_figure, save_figure
@@ -74,36 +73,22 @@ _PAGE_ORDER = {
 
 
 def source_kind(path: str | Path) -> str:
-    """``"run"`` for a covey run log, ``"campaign"`` for a campaign folder or ``summary.h5``.
+    """``"run"`` or ``"campaign"``: :func:`sim.gate.sources.source_kind`, with a missing path
+    named as the command's argument.
 
     Raises
     ------
     ScenarioError
-        The path does not exist, or is neither.
+        ``RUN_OR_CAMPAIGN``: nothing there.
+    LogFormatError
+        Neither a run log nor a campaign folder.
     """
-    from sim.campaign.summary import SCHEMA_NAME as CAMPAIGN_SCHEMA, SUMMARY_NAME
-    from sim.log.recorder import SCHEMA_NAME as RUN_SCHEMA
+    from sim.gate.sources import source_kind as kind
 
     p = Path(path)
-    if p.is_dir():
-        if (p / SUMMARY_NAME).is_file():
-            return "campaign"
-        raise ScenarioError("RUN_OR_CAMPAIGN", str(p), f"a run log (.h5) or a campaign folder "
-                            f"holding {SUMMARY_NAME}")
-    if not p.is_file():
+    if not p.exists():
         raise ScenarioError("RUN_OR_CAMPAIGN", str(p), "an existing run log (.h5) or campaign folder")
-    try:
-        with h5py.File(p, "r") as f:
-            schema = f.attrs.get("schema", "")
-    except OSError as exc:
-        raise LogFormatError(str(p), "/", f"cannot open as HDF5: {exc}") from None
-    schema = schema.decode() if isinstance(schema, bytes) else str(schema)
-    if schema == RUN_SCHEMA:
-        return "run"
-    if schema == CAMPAIGN_SCHEMA:
-        return "campaign"
-    raise LogFormatError(str(p), "/@schema", f"neither a covey run log nor a campaign summary "
-                                             f"(schema {schema!r})")
+    return kind(p)
 
 
 def verification_table(rows: Sequence[VerificationRow]) -> Table:
