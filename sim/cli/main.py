@@ -26,6 +26,8 @@ COMMANDS = {
     "run": "sim.cli.run",
     "validate": "sim.cli.validate",
     "demo": "sim.cli.demo",
+    "campaign": "sim.cli.campaign",
+    "summary": "sim.cli.summary",
 }
 """Command name -> module (with ``add_parser`` and ``run``), in the order ``--help`` lists them."""
 
