@@ -11,6 +11,10 @@ Importing this module starts no JVM (the truth is booted by ``run_scenario``).
 
 from __future__ import annotations
 
+from sim.campaign.execute import CampaignResult, run_campaign
+from sim.campaign.plan import Plan, plan_campaign
+from sim.campaign.report import build_report
+from sim.campaign.spec import Campaign, load_campaign, parse_campaign
 from sim.campaign.summary import CampaignSummary, read_summary
 from sim.errors import CoveyError, EnvironmentSetupError, LogFormatError, PropagationError, ScenarioError
 from sim.judge.metrics import DeputyMetrics, run_metrics
@@ -23,5 +27,6 @@ from sim.scenario.reader import load_scenario, parse_scenario
 
 __all__ = ["load_scenario", "parse_scenario", "RunConfig", "run_scenario", "RunSummary", "RunOptions",
            "read_log", "RunLog", "diff_logs", "run_metrics", "DeputyMetrics", "read_summary",
-           "CampaignSummary", "CoveyError", "ScenarioError", "EnvironmentSetupError",
+           "CampaignSummary", "load_campaign", "parse_campaign", "Campaign", "plan_campaign", "Plan",
+           "run_campaign", "CampaignResult", "build_report", "CoveyError", "ScenarioError", "EnvironmentSetupError",
            "PropagationError", "LogFormatError"]

@@ -21,7 +21,6 @@ from __future__ import annotations
 import difflib
 import json
 import os
-import shutil
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -365,7 +364,6 @@ def run_campaign(plan: Plan, folder, *, workers: int | None = None, scheduler: s
     folder = Path(folder).resolve()
     folder.mkdir(parents=True, exist_ok=True)
     t0 = time.perf_counter()
-    c = plan.campaign
     with _FolderLock(folder):
         notes = _prepare(folder, plan, fresh)
         todo = [j for j in plan.jobs if log_state(folder / j.log) is None]

@@ -219,8 +219,9 @@ class DaskExecutor:
 
 def make_executor(workers: int | None, scheduler: str | None):
     """The executor for ``--workers`` / ``--scheduler``: Dask when a scheduler is given (``local``:
-    a LocalCluster of ``workers`` processes, default 2... or the CPU count), else ``workers`` local
-    processes (default: the CPU count), or this process for ``workers = 0``."""
+    a LocalCluster of ``workers`` processes, default the CPU count; an address: the cluster's own
+    workers), else ``workers`` local processes (default: the CPU count), or this process for
+    ``workers = 0``."""
     n = workers if workers is not None else (os.cpu_count() or 1)
     if scheduler:
         return DaskExecutor(scheduler, max(1, n))

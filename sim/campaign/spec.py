@@ -331,7 +331,7 @@ def parse_campaign(text: str, path: str = "") -> Campaign:
     for item in (*dispersions, *sweeps):
         if item.key in keys:
             raise ScenarioError(f"{item.where}.key", item.key, "each key may be dispersed or swept "
-                                f"only once", f"{keys[item.key]} has it too", path=src)
+                                "only once", f"{keys[item.key]} has it too", path=src)
         if item.key in fixed:
             raise ScenarioError(f"{item.where}.key", item.key, "a key fixed in [campaign.set] "
                                 "cannot also be dispersed or swept", path=src)

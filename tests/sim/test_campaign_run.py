@@ -266,3 +266,31 @@ def test_cli_campaign_and_summary(tmp_path, fake_truth, capsys):
     assert main(["campaign", str(f), "--workers", "-1"]) == 2
     assert main(["summary", str(out), "--tolerance-m", "1,2"]) == 2
     capsys.readouterr()
+
+
+def test_progress_on_a_terminal_and_in_a_log():
+    import io
+
+    from sim.cli.campaign import CampaignProgress
+
+    class Tty(io.StringIO):
+        def isatty(self):
+            return True
+
+    st = dict(total=8, done=3, failed=1, running=2, skipped=1, eta_s=75.0,
+              last=dict(index=2, status="failed", reason="boom", log=""))
+    t = Tty()
+    bar = CampaignProgress(t)
+    bar(st)
+    bar(dict(st, done=8, running=0, eta_s=0.0, final=True))
+    out = t.getvalue()
+    assert out.startswith("\r[#########") and "3/8 runs done (1 already), 1 failed, 2 running, ETA 1m15s" in out
+    assert out.endswith("\n") and "8/8 runs done" in out
+    plain = io.StringIO()
+    bar = CampaignProgress(plain, interval_s=3600.0)
+    bar(st)
+    bar(dict(st, done=4))  # within the interval: no line
+    bar(dict(st, done=8, running=0, eta_s=0.0, final=True))
+    lines = plain.getvalue().splitlines()
+    assert lines == ["run 2 failed: boom", "3/8 runs done (1 already), 1 failed, 2 running, ETA 1m15s",
+                     "8/8 runs done (1 already), 1 failed, 0 running, ETA 0s"]

@@ -9,7 +9,6 @@ own input contract (common practice, no source).
 
 from __future__ import annotations
 
-import copy
 import textwrap
 import tomllib
 
