@@ -13,6 +13,10 @@ boots it too).
 
 from __future__ import annotations
 
+from sim.campaign.execute import CampaignResult, run_campaign
+from sim.campaign.plan import Plan, plan_campaign
+from sim.campaign.report import build_report as campaign_statistics
+from sim.campaign.spec import Campaign, load_campaign, parse_campaign
 from sim.campaign.summary import CampaignSummary, read_summary
 from sim.errors import (CoveyError, EnvironmentSetupError, LogFormatError, LogWriteError,
                         PropagationError, ScenarioError)
@@ -32,7 +36,8 @@ from sim.scenario.reader import load_scenario, parse_scenario
 __all__ = ["load_scenario", "parse_scenario", "feasibility_warnings", "RunConfig", "run_scenario",
            "RunSummary", "RunOptions",
            "read_log", "RunLog", "diff_logs", "run_metrics", "DeputyMetrics", "read_summary",
-           "CampaignSummary", "predict_scenario", "Prediction", "write_prediction", "read_prediction",
+           "CampaignSummary", "load_campaign", "parse_campaign", "Campaign", "plan_campaign", "Plan",
+           "run_campaign", "CampaignResult", "campaign_statistics", "predict_scenario", "Prediction", "write_prediction", "read_prediction",
            "compare_with_summary", "judge_log", "compare", "check", "assert_requirements",
            "build_report", "ReportResult", "VerificationRow", "export_run",
            "CoveyError", "ScenarioError", "EnvironmentSetupError", "PropagationError",

@@ -35,6 +35,8 @@ COMMANDS = {
     "check": "sim.cli.check",
     "report": "sim.cli.report",
     "export": "sim.cli.export",
+    "campaign": "sim.cli.campaign",
+    "summary": "sim.cli.summary",
 }
 """Command name -> module (with ``add_parser`` and ``run``), in the order ``--help`` lists them."""
 

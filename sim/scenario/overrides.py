@@ -8,11 +8,12 @@ import re
 from typing import Any
 
 
+from guidance.settings import type_name
 from sim.errors import ScenarioError
 
 
 
-__all__ = ['apply_override']
+__all__ = ["apply_override", "split_key", "join_key"]
 
 
 # ------------------------------------------------------------------------------------------
@@ -29,10 +30,23 @@ _WHAT = ("override key must be a dotted key path of bare TOML keys and [index] p
          "run.duration_days or deputies[0].roe_m")
 
 
-def _path_text(parts: list[Any]) -> str:
+def split_key(dotted: str) -> list[Any]:
+    """The parts of a key path: names (str) and indices (int).
+
+    ``"deputies[0].roe_m[1]"`` -> ``["deputies", 0, "roe_m", 1]``.
+    """
+    return [m.group(1) if m.group(1) is not None else int(m.group(2))
+            for m in _PART_RE.finditer(dotted)]
+
+
+def join_key(parts) -> str:
+    """Inverse of :func:`split_key`: ``["deputies", 0, "roe_m"]`` -> ``"deputies[0].roe_m"``."""
     out = ""
     for p in parts:
-        out += f"[{p}]" if isinstance(p, int) else (f".{p}" if out else p)
+        if isinstance(p, int):
+            out += f"[{p}]"
+        else:
+            out += f".{p}" if out else str(p)
     return out
 
 
@@ -54,20 +68,19 @@ def apply_override(raw: dict, dotted: str, value: Any, src: str) -> None:
     for n, (k, nxt) in enumerate(zip(parts[:-1], parts[1:])):
         node = _step(node, k, nxt, parts[:n + 1], key, value, src)
     last = parts[-1]
-    where = _path_text(parts[:-1])
+    where = join_key(parts[:-1])
     if isinstance(last, int):
         if not isinstance(node, list):
-            raise ScenarioError(key, value, f"{where} is {_kind(node)}, not an array", path=src)
+            raise _not_array(key, value, where, node, src)
         if last >= len(node):
-            raise ScenarioError(key, value, f"no such element: {where} has {len(node)}", path=src)
+            raise _out_of_range(key, value, where, node, last, src)
         node[last] = value
         return
     if isinstance(node, list):
-        raise ScenarioError(key, value, f"{where} is an array: give an [index] before .{last}",
+        raise ScenarioError(key, value, f"{where} is an array: address an element with [i]",
                             path=src)
     if not isinstance(node, dict):
-        raise ScenarioError(key, value, f"the key path goes through {where} = {_short(node)}, "
-                            "which is not a table", path=src)
+        raise _through(key, value, where, node, src)
     for pair in _ALTERNATIVES:
         if last in pair:
             for other in pair:
@@ -76,8 +89,22 @@ def apply_override(raw: dict, dotted: str, value: Any, src: str) -> None:
     node[last] = value
 
 
-def _kind(node: Any) -> str:
-    return "a table" if isinstance(node, dict) else f"the value {_short(node)}"
+def _out_of_range(key, value, where, node, k, src) -> ScenarioError:
+    n = len(node)
+    rng = f"indices 0 to {n - 1}" if n else "no elements"
+    return ScenarioError(key, value, f"index [{k}] is out of range: {where} has {n} "
+                         f"element{'s' if n != 1 else ''} in the file ({rng})", path=src)
+
+
+def _not_array(key, value, where, node, src) -> ScenarioError:
+    if isinstance(node, dict):
+        return ScenarioError(key, value, f"{where} is a table, not an array", path=src)
+    return _through(key, value, where, node, src)
+
+
+def _through(key, value, where, node, src) -> ScenarioError:
+    return ScenarioError(key, value, f"the path goes through {where} = {_short(node)}, which is "
+                         f"{type_name(node)}, not a table or an array", path=src)
 
 
 def _short(v: Any) -> str:
@@ -86,22 +113,21 @@ def _short(v: Any) -> str:
 
 
 def _step(node: Any, k: Any, nxt: Any, done: list[Any], key: str, value: Any, src: str) -> Any:
-    where = _path_text(done[:-1])
+    where = join_key(done[:-1])
     if isinstance(k, int):
         if not isinstance(node, list):
-            raise ScenarioError(key, value, f"{where} is {_kind(node)}, not an array", path=src)
+            raise _not_array(key, value, where, node, src)
         if k >= len(node):
-            raise ScenarioError(key, value, f"no such element: {where} has {len(node)}", path=src)
+            raise _out_of_range(key, value, where, node, k, src)
         return node[k]
     if isinstance(node, list):
-        raise ScenarioError(key, value, f"{where} is an array: give an [index] before .{k}",
+        raise ScenarioError(key, value, f"{where} is an array: address an element with [i]",
                             path=src)
     if not isinstance(node, dict):
-        raise ScenarioError(key, value, f"the key path goes through {where} = {_short(node)}, "
-                            "which is not a table", path=src)
+        raise _through(key, value, where, node, src)
     if k not in node:
         if isinstance(nxt, int):
-            raise ScenarioError(key, value, f"no such element: {_path_text(done)} is not in the "
-                                "file", path=src)
+            raise ScenarioError(key, value, f"{join_key(done)} is not in the file: [{nxt}] needs "
+                                "an array the file has", path=src)
         node[k] = {}
     return node[k]

@@ -206,15 +206,15 @@ def test_run_reports_a_known_orekit_failure_in_covey_words(repo_root, tmp_path, 
 
 @pytest.mark.parametrize("item, words", [
     ("[0]=1", "override key must be a dotted key path"),
-    ("chief.orbit.u_deg.x.y=1", "goes through chief.orbit.u_deg = 0.0, which is not a table"),
+    ("chief.orbit.u_deg.x.y=1", "goes through chief.orbit.u_deg = 0.0, which is a number"),
     ("run.duration_days=" + "9" * 400, "run.duration_days"),
     ("deputies[0].roe_m=" + "[" * 5000 + "]" * 5000, "nested too deeply"),
     ("a..b=1", "override key must be a dotted key path"),
     ("run[0]=1", "run is a table, not an array"),
-    ("deputies.name=x", "deputies is an array: give an [index]"),
+    ("deputies.name=x", "deputies is an array: address an element with [i]"),
     ("deputies[0][1]=1", "deputies[0] is a table, not an array"),
-    ("deputies[7].name='x'", "no such element: deputies has 1"),
-    ("newtable[0]=1", "no such element: newtable is not in the file"),
+    ("deputies[7].name='x'", "index [7] is out of range: deputies has 1 element"),
+    ("newtable[0]=1", "newtable is not in the file"),
 ])
 def test_set_edges_are_input_errors(repo_root, capsys, item, words):
     code = main(["validate", str(repo_root / "scenarios/ideal_pair.toml"), "--set", item])

@@ -1,0 +1,167 @@
+"""Campaign scaling on this machine: throughput with 1 and 2 workers, the per-run overhead of a
+campaign over the same run flown alone with ``covey run``, and a worker's resident memory over 20
+runs.
+
+1. The same campaign of ``--runs`` (8) runs of ``--days`` (1) day each: the demo formation
+   (``scenarios/demo_formation.toml``: chief + 2 deputies, full force model, the hybrid_resolve law,
+   realistic navigation and actuator errors, a truth density error), deadlines at the end of the
+   run, the initial along-track offset of each deputy dispersed (normal, 20 m), one truth thread
+   per run. Flown as a user flies it (``python -m sim.cli campaign FILE --workers N -q`` in a new
+   process, whole command timed), with 1 worker and with 2 workers; the throughput ratio is
+   wall(1 worker) / wall(2 workers) (target >= 1.8 on 2 cores).
+2. The first ``--alone`` (2) runs of that campaign flown alone, each with ``python -m sim.cli run
+   BASE --set ...`` (the run's own overrides from the campaign plan, COVEY_TRUTH_THREADS=1), whole
+   command timed (interpreter, imports, JVM boot, run). The per-run overhead of the campaign is
+   (wall(1 worker) / runs) / mean(wall of ``covey run``) - 1 (target <= 5 %; the JVM reuse is what
+   buys it). Also printed: the campaign's own bookkeeping, wall(1 worker) over the sum of its runs'
+   ``run_scenario`` wall times (``/meta@wall_time_s`` of the logs).
+3. One worker flies ``--memory-runs`` (20) runs of ``--memory-days`` (0.25) day of the same
+   campaign (``run_campaign``, 1 worker); the worker reports its ``VmRSS`` (``/proc/self/status``)
+   after each run: printed after run 1 and after the last, and the largest growth between runs 2 and
+   the last.
+
+Usage: ``python benchmarks/campaign_scaling.py [--runs 8] [--days 1] [--alone 2]
+[--memory-runs 20] [--memory-days 0.25] [--keep DIR]``. Run nothing else heavy meanwhile: the
+machine's 2 cores are the resource measured. Takes a few minutes.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+import textwrap
+import time
+from pathlib import Path
+
+REPO = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(REPO))
+
+import h5py  # noqa: E402
+
+from sim.campaign.execute import run_campaign  # noqa: E402
+from sim.campaign.plan import plan_campaign  # noqa: E402
+from sim.campaign.spec import load_campaign  # noqa: E402
+
+
+def campaign_file(folder: Path, name: str, runs: int, days: float) -> Path:
+    f = folder / f"{name}.toml"
+    f.write_text(textwrap.dedent(f"""
+        [campaign]
+        name = "{name}"
+        scenario = "{REPO / 'scenarios' / 'demo_formation.toml'}"
+        runs = {runs}
+        master_seed = 20261204
+        [campaign.set]
+        "run.duration_days" = {days}
+        "deputies[0].deadline_days" = {days}
+        "deputies[1].deadline_days" = {days}
+        [[dispersions]]
+        key = "deputies[0].roe_m[1]"
+        distribution = "normal"
+        mean = 2000.0
+        sigma = 20.0
+        [[dispersions]]
+        key = "deputies[1].roe_m[1]"
+        distribution = "normal"
+        mean = -1500.0
+        sigma = 20.0
+        """))
+    return f
+
+
+def env() -> dict:
+    return dict(os.environ, COVEY_TRUTH_THREADS="1", PYTHONPATH=str(REPO))
+
+
+def timed(cmd: list[str]) -> float:
+    t0 = time.perf_counter()
+    p = subprocess.run(cmd, cwd=REPO, env=env(), capture_output=True, text=True)
+    wall = time.perf_counter() - t0
+    if p.returncode != 0:
+        sys.exit(f"failed ({p.returncode}): {' '.join(cmd)}\n{p.stdout}\n{p.stderr}")
+    return wall
+
+
+def fly_campaign(f: Path, out: Path, workers: int) -> float:
+    return timed([sys.executable, "-m", "sim.cli", "campaign", str(f), "-o", str(out),
+                  "--workers", str(workers), "--fresh", "-q"])
+
+
+def run_walls(out: Path) -> list[float]:
+    walls = []
+    for p in sorted((out / "runs").glob("*.h5")):
+        with h5py.File(p, "r") as h:
+            walls.append(float(h["meta"].attrs["wall_time_s"]))
+    return walls
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--runs", type=int, default=8)
+    ap.add_argument("--days", type=float, default=1.0)
+    ap.add_argument("--alone", type=int, default=2)
+    ap.add_argument("--memory-runs", type=int, default=20)
+    ap.add_argument("--memory-days", type=float, default=0.25)
+    ap.add_argument("--keep", metavar="DIR", help="keep the campaign folders here")
+    a = ap.parse_args()
+    work = Path(a.keep) if a.keep else Path(tempfile.mkdtemp(prefix="covey-campaign-bench-"))
+    work.mkdir(parents=True, exist_ok=True)
+    print(f"load average before: {' '.join(f'{x:.2f}' for x in os.getloadavg())}; "
+          f"{os.cpu_count()} CPUs", flush=True)
+    try:
+        f = campaign_file(work, "scaling", a.runs, a.days)
+        plan = plan_campaign(load_campaign(f))
+        w1 = fly_campaign(f, work / "w1", 1)
+        print(f"1 worker : {a.runs} runs of {a.days:g} day in {w1:.1f} s "
+              f"({w1 / a.runs:.2f} s per run)", flush=True)
+        w2 = fly_campaign(f, work / "w2", 2)
+        print(f"2 workers: {a.runs} runs of {a.days:g} day in {w2:.1f} s "
+              f"({w2 / a.runs:.2f} s per run)", flush=True)
+        inside = run_walls(work / "w1")
+        alone = []
+        base = REPO / "scenarios" / "demo_formation.toml"
+        for j in plan.jobs[:a.alone]:
+            sets = []
+            for k, v in j.overrides:
+                sets += ["--set", f"{k}={v!r}" if not isinstance(v, str) else f'{k}="{v}"']
+            wall = timed([sys.executable, "-m", "sim.cli", "run", str(base), "-o",
+                          str(work / "alone" / f"{j.name}.h5"), "-q", *sets])
+            alone.append(wall)
+            print(f"covey run alone, run {j.index}: {wall:.1f} s (the same run inside the "
+                  f"campaign: {inside[j.index]:.1f} s of run_scenario)", flush=True)
+        # memory: one worker, many runs
+        fm = campaign_file(work, "memory", a.memory_runs, a.memory_days)
+        pm = plan_campaign(load_campaign(fm))
+        res = run_campaign(pm, work / "memory", workers=1, fresh=True)
+        rss = [w["rss_kb"] for w in sorted(res.worker_runs, key=lambda w: w["index"])]
+        pids = {w["pid"] for w in res.worker_runs}
+    finally:
+        if not a.keep:
+            shutil.rmtree(work, ignore_errors=True)
+    ratio = w1 / w2
+    per_run = w1 / a.runs
+    mean_alone = sum(alone) / len(alone)
+    overhead = per_run / mean_alone - 1.0
+    harness = w1 / sum(inside) - 1.0
+    growth = max(rss[1:]) - rss[1] if len(rss) > 1 else 0
+    print()
+    print(f"throughput ratio 2 workers / 1 worker: {ratio:.2f} (target >= 1.8)")
+    print(f"per-run wall in a 1-worker campaign {per_run:.2f} s vs covey run alone "
+          f"{mean_alone:.2f} s (mean of {len(alone)}): overhead {100 * overhead:+.1f} % "
+          f"(target <= 5 %)")
+    print(f"campaign command vs the sum of its runs' run_scenario wall times "
+          f"({sum(inside):.1f} s): {100 * harness:+.1f} % (interpreter, JVM boot, planning, "
+          f"summary)")
+    print(f"worker resident memory ({len(pids)} process, {len(rss)} runs of {a.memory_days:g} "
+          f"day): after run 1 {rss[0] / 1024:.0f} MB, after run {len(rss)} {rss[-1] / 1024:.0f} MB; "
+          f"largest growth over runs 2..{len(rss)}: {growth / 1024:+.0f} MB")
+    print("RSS per run (MB): " + " ".join(f"{x / 1024:.0f}" for x in rss))
+    print(f"load average after: {' '.join(f'{x:.2f}' for x in os.getloadavg())}")
+
+
+if __name__ == "__main__":
+    main()
