@@ -102,7 +102,10 @@ def _hp_mean_table():
 _HP_ALT_KM, _HP_LNRHO = _hp_mean_table()
 
 
-def _exponential_table_density(h_km):
+def exponential_table_density_kgpm3(h_km):
+    """Density of the exponential atmosphere table (Vallado 2013, table 8-4) at altitudes ``h_km``
+    (array_like, km; below the first base altitude as at it), kg/m^3."""
+    h_km = np.asarray(h_km, dtype=float)
     base = _EXP_TABLE[:, 0]
     k = np.clip(np.searchsorted(base, h_km, side="right") - 1, 0, base.size - 1)
     return _EXP_TABLE[k, 1] * np.exp(-(h_km - base[k]) / _EXP_TABLE[k, 2])
@@ -186,7 +189,7 @@ class DensityModel:
                 f"a finite altitude of at least {self._min_alt_km * 1000.0:.0f} m for the "
                 f"{self.model!r} density model")
         if self.model == "exponential":
-            rho = _exponential_table_density(h_km)
+            rho = exponential_table_density_kgpm3(h_km)
         else:
             rho = _harris_priester_table_density(h_km)
         return self.density_coefficient * rho * flux_factor(h_km, self.f107_forecast_sfu)

@@ -88,19 +88,6 @@ exceeds this (m/s^2). Orekit's integrator fails at t = 0 ("hyperbolic orbits can
 handled") at about 10 m/s^2 (measured: a 4 kg, 0.034 m^2 bus at 80 km, or a 1e-6 kg one at
 475 km); at 1 m/s^2 an orbit loses over 5 km/s per revolution."""
 
-# Exponential atmosphere: base altitude km, density kg/m^3, scale height km (Vallado,
-# Fundamentals of Astrodynamics and Applications, 4th ed., 2013, Table 8-4) [memory]
-_EXP_ATMOSPHERE = (
-    (0, 1.225, 7.249), (25, 3.899e-2, 6.349), (30, 1.774e-2, 6.682), (40, 3.972e-3, 7.554),
-    (50, 1.057e-3, 8.382), (60, 3.206e-4, 7.714), (70, 8.770e-5, 6.549), (80, 1.905e-5, 5.799),
-    (90, 3.396e-6, 5.382), (100, 5.297e-7, 5.877), (110, 9.661e-8, 7.263),
-    (120, 2.438e-8, 9.473), (130, 8.484e-9, 12.636), (140, 3.845e-9, 16.149),
-    (150, 2.070e-9, 22.523), (180, 5.464e-10, 29.740), (200, 2.789e-10, 37.105),
-    (250, 7.248e-11, 45.546), (300, 2.418e-11, 53.628), (350, 9.518e-12, 53.298),
-    (400, 3.725e-12, 58.515), (450, 1.585e-12, 60.828), (500, 6.967e-13, 63.822),
-    (600, 1.454e-13, 71.835), (700, 3.614e-14, 88.667), (800, 1.170e-14, 124.64),
-    (900, 5.245e-15, 181.05), (1000, 3.019e-15, 268.00))
-
 LOW_PERIGEE_KM = 120.0
 """Below this initial perigee altitude a too-large deceleration is reported against the orbit's
 key, above it against the bus mass."""
@@ -126,14 +113,11 @@ def mean_theory_inclination_problem(i_deg: float) -> str | None:
 
 
 def _density_kgpm3(alt_km: float) -> float:
-    """Exponential-atmosphere density (``_EXP_ATMOSPHERE``), kg/m^3; below 0 km as at 0 km."""
-    h = max(0.0, alt_km)
-    base = _EXP_ATMOSPHERE[0]
-    for row in _EXP_ATMOSPHERE:
-        if row[0] <= h:
-            base = row
-    h0, rho0, scale = base
-    return rho0 * math.exp(-(h - h0) / scale)
+    """Exponential-atmosphere density (guidance's table, Vallado 2013 table 8-4), kg/m^3; below
+    0 km as at 0 km (a bound for the deceleration check, not the truth's model)."""
+    from guidance.density import exponential_table_density_kgpm3
+
+    return float(exponential_table_density_kgpm3(max(0.0, alt_km)))
 
 
 def _largest_area_m2(bus: BusConfig) -> float:
