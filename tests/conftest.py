@@ -127,6 +127,9 @@ class FakeTruthWorld:
     def cancel_early(self):
         pass
 
+    def close(self):
+        pass
+
 
 def fake_truth_api(World):
     """The truth backend namespace of sim.loop.run (``truth_backend()``) with ``World`` (a

@@ -278,6 +278,10 @@ def run_scenario(cfg: RunConfig, out_path, progress: ProgressFn | None = None,
     finally:
         if engine is not None:
             engine.close()
+            try:  # free the truth's Java objects (a campaign worker flies many runs)
+                engine.world.close()
+            except Exception:  # noqa: BLE001 - nothing more to save
+                pass
         wall = time.perf_counter() - wall0
         try:  # the guidance cycle outcomes, also of a failed run
             cycles = read_cycles(rec.file)

@@ -78,8 +78,11 @@ class TruthModel(Protocol):
     def drain_events(self) -> list[dict]:
         """Events since the last drain (``t_s``, ``name``, ``kind``, ``detail``)."""
 
+    def close(self) -> None:
+        """Release what the world holds (called once when the run ends; idempotent)."""
+
 
 TRUTH_METHODS = ("mode_names", "mode_area_m2", "states", "set_mode_schedule", "set_impulses",
                  "advance_to", "start_early", "cancel_early", "drain_samples",
-                 "drain_executed_impulses", "drain_events")
+                 "drain_executed_impulses", "drain_events", "close")
 """The methods of :class:`TruthModel` (checked by name and signature in the tests)."""

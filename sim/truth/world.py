@@ -803,6 +803,35 @@ class TruthWorld:
         while self._early is not None:
             self._cancel_early(next(iter(self._early["items"])))
 
+    def close(self) -> None:
+        """Release the run's Java objects (idempotent; the world cannot advance afterwards).
+
+        Each propagator holds Python proxies (the step handler and the impulse triggers) that hold
+        the spacecraft's book-keeping, which holds the propagator again: a cycle between the two
+        heaps that neither garbage collector can free, so a process that flies many runs (a
+        campaign worker) would keep every finished world. Clearing the propagators' handlers and
+        detectors and dropping the Python side breaks it.
+        """
+        if getattr(self, "_closed", False):
+            return
+        self.cancel_early()
+        for c in self._crafts.values():
+            try:
+                p = c.propagator
+                p.clearEventsDetectors()
+                p.getMultiplexer().clear()
+                p.removeForceModels()
+            except Exception:  # noqa: BLE001 - a JVM already shutting down: nothing to free
+                pass
+            c.sampler = None
+            c.propagator = c.integrator = None
+            c.static_forces = []
+            c.world = None
+        self._crafts.clear()
+        self._msis = None
+        self._tod_cache.clear()
+        self._closed = True
+
     def _run_segments(self, t1: float, begun: Mapping[str, object] | None = None
                       ) -> dict[str, tuple[float, str | None]]:
         """:meth:`_run_segment` of every spacecraft, ``self.threads`` at a time (JPype releases
