@@ -18,6 +18,7 @@ Each executor has ``capacity`` (runs in flight at once), ``submit(fn, task) -> f
 from __future__ import annotations
 
 import concurrent.futures as cf
+import time
 import logging
 import multiprocessing
 import os
@@ -121,9 +122,13 @@ class LocalExecutor:
             return None, f"{type(exc).__name__}: {exc}"
 
     def _exitcode(self, i: int):
+        """Exit code of slot ``i``'s dead worker (None if it cannot be had): the process is
+        joined for up to 30 s, since on a loaded machine it can still be going down when the
+        pool reports it broken."""
+        deadline = time.monotonic() + 30.0
         for p in self._procs.get(i, ()):
             try:
-                p.join(timeout=5)
+                p.join(timeout=max(0.1, deadline - time.monotonic()))
                 if p.exitcode is not None:
                     return p.exitcode
             except (AssertionError, ValueError, AttributeError):
