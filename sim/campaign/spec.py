@@ -25,7 +25,7 @@ from typing import Any
 import numpy as np
 
 from guidance.settings import closest, type_name
-from sim.errors import EnvironmentSetupError, ScenarioError
+from sim.errors import ScenarioError
 from sim.scenario.overrides import split_key
 from sim.scenario.tables import Table, unit_of
 
@@ -272,15 +272,10 @@ def load_campaign(path) -> Campaign:
         A problem in the file, naming the key (``dispersions[1].sigma``), the value and what is
         allowed.
     """
+    from sim.scenario.reader import read_input_file
+
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise EnvironmentSetupError(f"campaign file {str(p)!r} not found",
-                                    "give the path of a campaign .toml (see scenarios/)") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise EnvironmentSetupError(f"cannot read campaign file {str(p)!r}: {exc}",
-                                    "give a readable UTF-8 TOML file") from None
+    text = read_input_file(p, "campaign", "give the path of a campaign .toml (see scenarios/)")
     return parse_campaign(text, str(p.resolve()))
 
 

@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from sim.errors import EnvironmentSetupError, ScenarioError
+from sim.errors import ScenarioError
 from sim.gate.quantities import RUN_QUANTITIES, deputy_quantities
 from sim.gate.stats import PERCENTILE_METHODS
 
@@ -328,14 +328,9 @@ def load_requirements(path) -> RequirementSet:
     ScenarioError
         Its content is refused.
     """
+    from sim.scenario.reader import read_input_file
+
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise EnvironmentSetupError(f"requirements file {str(p)!r} not found",
-                                    "give the path of a requirements TOML file (example: "
-                                    "scenarios/demo_formation_requirements.toml)") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise EnvironmentSetupError(f"cannot read requirements file {str(p)!r}: {exc}",
-                                    "give a readable UTF-8 TOML file") from None
+    text = read_input_file(p, "requirements", "give the path of a requirements TOML file (example: "
+                           "scenarios/demo_formation_requirements.toml)")
     return parse_requirements(text, str(p))

@@ -58,6 +58,25 @@ __all__ = [
 # ------------------------------------------------------------------------------------------
 
 
+def read_input_file(path: str | os.PathLike, what: str, missing_fix: str) -> str:
+    """The text of an input file (a scenario, campaign or requirements TOML), UTF-8.
+
+    Raises
+    ------
+    EnvironmentSetupError
+        ``"<what> file PATH not found"`` with ``missing_fix``, or ``"cannot read <what> file
+        PATH: ..."``.
+    """
+    p = Path(path)
+    try:
+        return p.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise EnvironmentSetupError(f"{what} file {str(p)!r} not found", missing_fix) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise EnvironmentSetupError(f"cannot read {what} file {str(p)!r}: {exc}",
+                                    "give a readable UTF-8 TOML file") from None
+
+
 def load_scenario(path, overrides: Mapping[str, Any] | None = None, *,
                   orekit_data: str | os.PathLike | None = None,
                   check_solar_span: bool = True) -> RunConfig:
@@ -90,14 +109,7 @@ def load_scenario(path, overrides: Mapping[str, Any] | None = None, *,
         The file (or the Orekit data folder) cannot be read.
     """
     p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise EnvironmentSetupError(f"scenario file {str(p)!r} not found",
-                                    "give the path of a .toml scenario (see scenarios/)") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise EnvironmentSetupError(f"cannot read scenario file {str(p)!r}: {exc}",
-                                    "give a readable UTF-8 TOML file") from None
+    text = read_input_file(p, "scenario", "give the path of a .toml scenario (see scenarios/)")
     return parse_scenario(text, str(p.resolve()), overrides=overrides, orekit_data=orekit_data,
                           check_solar_span=check_solar_span)
 
