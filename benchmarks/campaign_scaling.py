@@ -23,8 +23,11 @@ runs.
    after each run: printed after run 1 and after the last, and the largest growth between runs 2 and
    the last.
 
+Also printed: the CPU time (user + system, every process of the command) of each campaign, the
+cores it kept busy and the ceiling they put on the ratio.
+
 Usage: ``python benchmarks/campaign_scaling.py [--runs 8] [--days 1] [--alone 2]
-[--memory-runs 20] [--memory-days 0.25] [--keep DIR]``. Run nothing else heavy meanwhile: the
+[--memory-runs 20] [--memory-days 0.25] [--jvm-options TEXT] [--keep DIR]``. Run nothing else heavy meanwhile: the
 machine's 2 cores are the resource measured. Takes a few minutes.
 """
 
@@ -32,6 +35,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import resource
 import shutil
 import subprocess
 import sys
@@ -80,18 +84,25 @@ def env() -> dict:
     return dict(os.environ, COVEY_TRUTH_THREADS="1", PYTHONPATH=str(REPO))
 
 
+CPU: list[float] = []  # CPU seconds (user + system) of each timed command and its processes
+
+
 def timed(cmd: list[str]) -> float:
+    r0 = resource.getrusage(resource.RUSAGE_CHILDREN)
     t0 = time.perf_counter()
     p = subprocess.run(cmd, cwd=REPO, env=env(), capture_output=True, text=True)
     wall = time.perf_counter() - t0
+    r1 = resource.getrusage(resource.RUSAGE_CHILDREN)
+    CPU.append(r1.ru_utime + r1.ru_stime - r0.ru_utime - r0.ru_stime)
     if p.returncode != 0:
         sys.exit(f"failed ({p.returncode}): {' '.join(cmd)}\n{p.stdout}\n{p.stderr}")
     return wall
 
 
-def fly_campaign(f: Path, out: Path, workers: int) -> float:
+def fly_campaign(f: Path, out: Path, workers: int, jvm: str | None) -> float:
+    extra = ["--jvm-options", jvm] if jvm is not None else []
     return timed([sys.executable, "-m", "sim.cli", "campaign", str(f), "-o", str(out),
-                  "--workers", str(workers), "--fresh", "-q"])
+                  "--workers", str(workers), "--fresh", "-q", *extra])
 
 
 def run_walls(out: Path) -> list[float]:
@@ -110,6 +121,9 @@ def main() -> None:
     ap.add_argument("--memory-runs", type=int, default=20)
     ap.add_argument("--memory-days", type=float, default=0.25)
     ap.add_argument("--keep", metavar="DIR", help="keep the campaign folders here")
+    ap.add_argument("--jvm-options", metavar="TEXT", default=None,
+                    help="the workers' JVM options (default: the campaign's own, "
+                         "sim.campaign.worker.WORKER_JVM_OPTIONS; '' the JVM's defaults)")
     a = ap.parse_args()
     work = Path(a.keep) if a.keep else Path(tempfile.mkdtemp(prefix="covey-campaign-bench-"))
     work.mkdir(parents=True, exist_ok=True)
@@ -118,12 +132,16 @@ def main() -> None:
     try:
         f = campaign_file(work, "scaling", a.runs, a.days)
         plan = plan_campaign(load_campaign(f))
-        w1 = fly_campaign(f, work / "w1", 1)
+        w1 = fly_campaign(f, work / "w1", 1, a.jvm_options)
+        c1 = CPU[-1]
         print(f"1 worker : {a.runs} runs of {a.days:g} day in {w1:.1f} s "
-              f"({w1 / a.runs:.2f} s per run)", flush=True)
-        w2 = fly_campaign(f, work / "w2", 2)
+              f"({w1 / a.runs:.2f} s per run), {c1:.1f} CPU-s: {c1 / w1:.2f} cores busy",
+              flush=True)
+        w2 = fly_campaign(f, work / "w2", 2, a.jvm_options)
+        c2 = CPU[-1]
         print(f"2 workers: {a.runs} runs of {a.days:g} day in {w2:.1f} s "
-              f"({w2 / a.runs:.2f} s per run)", flush=True)
+              f"({w2 / a.runs:.2f} s per run), {c2:.1f} CPU-s: {c2 / w2:.2f} cores busy",
+              flush=True)
         inside = run_walls(work / "w1")
         inside2 = run_walls(work / "w2")
         print("run_scenario wall per run (s), 1 worker : " + " ".join(f"{x:.1f}" for x in inside))
@@ -143,7 +161,7 @@ def main() -> None:
         # memory: one worker, many runs
         fm = campaign_file(work, "memory", a.memory_runs, a.memory_days)
         pm = plan_campaign(load_campaign(fm))
-        res = run_campaign(pm, work / "memory", workers=1, fresh=True)
+        res = run_campaign(pm, work / "memory", workers=1, fresh=True, jvm_options=a.jvm_options)
         rss = [w["rss_kb"] for w in sorted(res.worker_runs, key=lambda w: w["index"])]
         pids = {w["pid"] for w in res.worker_runs}
     finally:
@@ -161,6 +179,10 @@ def main() -> None:
     s2 = sum(inside2[2:]) / max(1, len(inside2) - 2)
     print()
     print(f"throughput ratio 2 workers / 1 worker: {ratio:.2f} (target >= 1.8)")
+    print(f"CPU: 1 worker {c1:.1f} CPU-s in {w1:.1f} s ({c1 / w1:.2f} cores busy), 2 workers "
+          f"{c2:.1f} CPU-s ({c2 / c1:.2f} x the work of 1 worker: each worker's JVM boots, loads "
+          f"its data and compiles the same code); 2 cores need at least {c2 / 2:.1f} s for "
+          f"{c2:.1f} CPU-s, so the ratio cannot exceed {w1:.1f} / {c2 / 2:.1f} = {2 * w1 / c2:.2f}")
     print(f"steady state (each worker's first run left out): run_scenario {s1:.2f} s per run with "
           f"1 worker, {s2:.2f} s with 2 side by side: throughput ratio {2 * s1 / s2:.2f}")
     print(f"per-run wall in a 1-worker campaign {per_run:.2f} s vs covey run alone "

@@ -140,7 +140,7 @@ def fake_truth_api(World):
                                 java_version="fake", jpype_version="fake",
                                 data_files=(("a.txt", 3, "2025-01-01T00:00:00Z"),))
     api = SimpleNamespace(
-        boot=lambda data_path=None: boot_info, TruthWorld=World,
+        boot=lambda data_path=None, jvm_options=None: boot_info, TruthWorld=World,
         mean_elements=lambda t, r, v, epoch: rv_to_oe(r, v),
         mean_roe_m=lambda c, d: oe_to_roe(c, d) * np.asarray(c)[..., :1])
     return api

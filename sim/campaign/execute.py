@@ -19,6 +19,7 @@ complete (run logs and the summary are written under temporary names and renamed
 from __future__ import annotations
 
 import difflib
+import functools
 import json
 import os
 import time
@@ -319,7 +320,7 @@ ProgressFn = Callable[[dict], None]
 def run_campaign(plan: Plan, folder, *, workers: int | None = None, scheduler: str | None = None,
                  fresh: bool = False, truth_threads: int = 1, orekit_data: str | None = None,
                  progress: ProgressFn | None = None, fly: Callable | None = None,
-                 executor=None) -> CampaignResult:
+                 executor=None, jvm_options=None) -> CampaignResult:
     """Fly every run of ``plan`` that has no complete log in ``folder``; write the summary.
 
     Parameters
@@ -347,6 +348,10 @@ def run_campaign(plan: Plan, folder, *, workers: int | None = None, scheduler: s
         by the workers.
     executor : optional
         An executor object to use instead of making one (see :mod:`sim.campaign.executors`).
+    jvm_options : str or sequence of str, optional
+        Options of the workers' JVMs; default ``COVEY_JVM_OPTIONS`` when set, else
+        :data:`sim.campaign.worker.WORKER_JVM_OPTIONS`; ``""``: the JVM's own defaults. A worker
+        whose JVM runs already (``--workers 0``, a reused Dask worker) keeps its options.
 
     Returns
     -------
@@ -355,10 +360,18 @@ def run_campaign(plan: Plan, folder, *, workers: int | None = None, scheduler: s
     Raises
     ------
     EnvironmentSetupError
-        The folder holds a different campaign (without ``fresh``), or is in use.
+        The folder holds a different campaign (without ``fresh``), or is in use; JVM options
+        that cannot be split into options.
     """
     from sim.campaign.executors import make_executor
-    from sim.campaign.worker import Task, fly_job
+    from sim.campaign.worker import WORKER_JVM_OPTIONS, Task, fly_job
+    from sim.orekit.boot import JVM_OPTIONS_ENV, check_jvm_options, jvm_options_from
+
+    if jvm_options is None and not os.environ.get(JVM_OPTIONS_ENV):
+        jvm_options = WORKER_JVM_OPTIONS
+    jvm = tuple(jvm_options_from(jvm_options))
+    if jvm != WORKER_JVM_OPTIONS:
+        check_jvm_options(jvm)  # refused here, not by every worker one run after the other
 
     fly = fly or fly_job
     folder = Path(folder).resolve()
@@ -380,8 +393,11 @@ def run_campaign(plan: Plan, folder, *, workers: int | None = None, scheduler: s
             if progress:
                 progress(dict(state))
             if todo:
-                _drive(ex, fly, todo, plan, folder, orekit_data, truth_threads, session,
-                       worker_runs, state, progress, t0, Task)
+                make_task = functools.partial(Task, folder=str(folder), base_text=plan.campaign.base_text,
+                                              base_path=plan.campaign.base_path,
+                                              orekit_data=orekit_data, truth_threads=truth_threads,
+                                              jvm_options=jvm)
+                _drive(ex, fly, todo, folder, session, worker_runs, state, progress, make_task)
         except BaseException:
             if ex is not None:
                 ex.close(cancel=True)
@@ -403,9 +419,7 @@ def run_campaign(plan: Plan, folder, *, workers: int | None = None, scheduler: s
                           wall_s=time.perf_counter() - t0, executor=state["executor"])
 
 
-def _drive(ex, fly, todo, plan, folder, orekit_data, truth_threads, session, worker_runs, state,
-           progress, t0, Task) -> None:
-    c = plan.campaign
+def _drive(ex, fly, todo, folder, session, worker_runs, state, progress, make_task) -> None:
     pending = list(todo)
     inflight: dict = {}
     started = time.perf_counter()
@@ -414,8 +428,7 @@ def _drive(ex, fly, todo, plan, folder, orekit_data, truth_threads, session, wor
     while pending or inflight:
         while pending and len(inflight) < ex.capacity:
             job = pending.pop(0)
-            task = Task(job=job, folder=str(folder), base_text=c.base_text, base_path=c.base_path,
-                        orekit_data=orekit_data, truth_threads=truth_threads)
+            task = make_task(job=job)
             inflight[ex.submit(fly, task)] = job
         state["running"] = len(inflight)
         done = ex.wait(list(inflight), timeout=1.0)

@@ -77,10 +77,14 @@ class LocalExecutor:
     kind = "local"
 
     def __init__(self, n: int):
-        from sim.campaign.worker import init_local_worker
+        from sim.campaign.worker import WORKER_THREAD_ENV, init_local_worker
 
         if n < 1:
             raise ValueError("at least one worker")
+        # inherited by the spawned workers (read by the numerical libraries when they load); this
+        # process's own libraries are loaded already and keep their settings
+        for k, v in WORKER_THREAD_ENV.items():
+            os.environ.setdefault(k, v)
         self.capacity = int(n)
         self._ctx = multiprocessing.get_context("spawn")
         self._init = init_local_worker
@@ -100,7 +104,10 @@ class LocalExecutor:
         pool = self._slots[free[0]]
         f = pool.submit(fn, task)
         self._busy[f] = free[0]
-        self._procs[free[0]] = list((getattr(pool, "_processes", None) or {}).values())
+        # the processes and their Popen handles: the pool may join and close a dead process
+        # (Process.exitcode then raises) before outcome() asks; the handle keeps the exit code
+        self._procs[free[0]] = [(p, getattr(p, "_popen", None))
+                                for p in (getattr(pool, "_processes", None) or {}).values()]
         return f
 
     def wait(self, futures, timeout: float | None):
@@ -126,13 +133,18 @@ class LocalExecutor:
         joined for up to 30 s, since on a loaded machine it can still be going down when the
         pool reports it broken."""
         deadline = time.monotonic() + 30.0
-        for p in self._procs.get(i, ()):
+        for p, popen in self._procs.get(i, ()):
             try:
                 p.join(timeout=max(0.1, deadline - time.monotonic()))
                 if p.exitcode is not None:
                     return p.exitcode
-            except (AssertionError, ValueError, AttributeError):
+            except (AssertionError, ValueError, AttributeError):  # closed by the pool already
                 pass
+            while popen is not None and time.monotonic() < deadline:
+                code = popen.returncode if popen.returncode is not None else popen.poll()
+                if code is not None:
+                    return code
+                time.sleep(0.05)
         return None
 
     def close(self, cancel: bool = False) -> None:

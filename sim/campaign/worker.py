@@ -4,10 +4,18 @@ A worker process (a local ``spawn`` process or a Dask worker) calls :func:`fly_j
 the JVM is started by the first run (``sim.orekit.boot.boot`` is once per process) and reused by
 every later run of that process. Each run writes an ordinary covey run log (``run_scenario``: a
 temporary ``.part`` name, renamed when closed). Only the parent writes the campaign summary.
+
+A worker is meant to keep one core busy: its JVM starts with :data:`WORKER_JVM_OPTIONS` (the
+serial garbage collector: no collector threads competing with the other workers, and a committed
+heap that stays put from run to run) unless the campaign is given other options, and numerical
+libraries run one thread each (:data:`WORKER_THREAD_ENV`, set for local workers by
+:class:`sim.campaign.executors.LocalExecutor`; Dask's nanny sets the same by default).
+benchmarks/RESULTS.md has the measurements behind both choices.
 """
 
 from __future__ import annotations
 
+import gc
 import os
 import signal
 import sys
@@ -15,7 +23,16 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-__all__ = ["Task", "fly_job", "init_local_worker", "rss_kb"]
+__all__ = ["Task", "fly_job", "init_local_worker", "rss_kb", "WORKER_JVM_OPTIONS",
+           "WORKER_THREAD_ENV"]
+
+#: JVM options of a campaign worker unless the campaign is given others (``--jvm-options``).
+WORKER_JVM_OPTIONS: tuple[str, ...] = ("-XX:+UseSerialGC",)
+
+#: Environment of a local worker process (each left as the user set it, if set): one thread per
+#: numerical library, so that N workers on N cores do not start N x cores busy-waiting threads.
+WORKER_THREAD_ENV: dict[str, str] = {"OPENBLAS_NUM_THREADS": "1", "OMP_NUM_THREADS": "1",
+                                     "MKL_NUM_THREADS": "1"}
 
 
 @dataclass(frozen=True)
@@ -32,6 +49,8 @@ class Task:
     orekit_data : str or None
     truth_threads : int
         Spacecraft propagated at the same time inside the run (1: one core per worker).
+    jvm_options : tuple of str
+        Options of the worker's JVM (used by the worker's first run, which starts it).
     """
 
     job: object
@@ -40,6 +59,7 @@ class Task:
     base_path: str
     orekit_data: str | None = None
     truth_threads: int = 1
+    jvm_options: tuple[str, ...] = WORKER_JVM_OPTIONS
 
 
 def rss_kb() -> int:
@@ -87,13 +107,14 @@ def fly_job(task: Task) -> dict:
     dict
         ``index``, ``status`` (``ok``, ``stopped``, ``failed``), ``reason``, ``log`` (absolute
         path, "" when no log was written), ``wall_s`` (this call), ``rss_kb`` (the process's
-        resident memory after the run), ``pid``.
+        resident memory after the run and a garbage collection of Python and the JVM), ``pid``.
     """
     from guidance.interface import GuidanceInputError
 
     from sim.errors import CoveyError
     from sim.loop.options import RunOptions
-    from sim.loop.run import run_scenario
+    from sim.loop.run import run_scenario, truth_backend
+    from sim.orekit.boot import collect_java_garbage
     from sim.scenario.reader import parse_scenario
 
     t0 = time.perf_counter()
@@ -101,6 +122,8 @@ def fly_job(task: Task) -> dict:
     out = Path(task.folder) / job.log
     status, reason, log = "failed", "", ""
     try:
+        # the JVM starts with the worker's options (once per process; later runs reuse it)
+        truth_backend().boot(task.orekit_data, jvm_options=tuple(task.jvm_options))
         # the plan checked the solar-activity span for the base and every dispersed extreme
         cfg = parse_scenario(task.base_text, task.base_path, overrides=dict(job.overrides),
                              orekit_data=task.orekit_data, check_solar_span=False)
@@ -113,5 +136,8 @@ def fly_job(task: Task) -> dict:
     except Exception as exc:  # noqa: BLE001 - reported to the parent, the campaign goes on
         reason = f"{type(exc).__name__}: {exc}"
         log = str(out) if out.is_file() else ""
+    # the next run starts on the same memory: Python's cycles and the JVM's heap collected
+    gc.collect()
+    collect_java_garbage()
     return dict(index=job.index, status=status, reason=reason, log=log,
                 wall_s=time.perf_counter() - t0, rss_kb=rss_kb(), pid=os.getpid())

@@ -34,6 +34,10 @@ def add_parser(sub) -> argparse.ArgumentParser:
                    help="truth threads per run (default 1: one core per worker)")
     p.add_argument("--orekit-data", metavar="PATH",
                    help="Orekit data folder or zip for every run")
+    p.add_argument("--jvm-options", metavar="TEXT",
+                   help="options of the workers' Java virtual machines, e.g. '-Xmx2g "
+                        "-XX:+UseSerialGC' (default: COVEY_JVM_OPTIONS when set, else "
+                        "'-XX:+UseSerialGC'; '' for the JVM's own defaults)")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress lines")
     return p
 
@@ -120,7 +124,8 @@ def run(args: argparse.Namespace) -> int:
     try:
         res = run_campaign(plan, folder, workers=args.workers, scheduler=args.scheduler,
                            fresh=args.fresh, truth_threads=args.truth_threads,
-                           orekit_data=args.orekit_data, progress=progress)
+                           orekit_data=args.orekit_data, progress=progress,
+                           jvm_options=args.jvm_options)
     finally:
         if bar is not None:
             bar.done()

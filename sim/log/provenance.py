@@ -73,7 +73,8 @@ def write_boot_meta(rec: RunRecorder, info: Any) -> None:
     rec.write_attrs("meta", orekit_version=g("orekit_version") or "unknown",
                     java_version=g("java_version") or "unknown",
                     jpype_version=g("jpype_version") or "unknown",
-                    data_path=str(g("data_path") or ""), data_source=str(g("data_source") or ""))
+                    data_path=str(g("data_path") or ""), data_source=str(g("data_source") or ""),
+                    jvm_options_json=json.dumps(list(g("jvm_options") or ())))
     files = list(g("data_files") or ())
     rec.append("meta/data_files", units={"path": "text", "mtime_utc": "text"},
                path=[str(f[0]) for f in files], size_bytes=np.array([int(f[1]) for f in files],

@@ -47,8 +47,9 @@ from sim.log.container import (PathLock, pack_header, remove_stale_temporaries,
 __all__ = ["SCHEMA_NAME", "SCHEMA_VERSION", "RunRecorder", "units_for"]
 
 SCHEMA_NAME = "covey.runlog"
-SCHEMA_VERSION = "1.3"
-"""Major.minor. A reader accepts any file of the same major version. 1.3 added the target verdict
+SCHEMA_VERSION = "1.4"
+"""Major.minor. A reader accepts any file of the same major version. 1.4 added the JVM's options
+(``/meta@jvm_options_json``). 1.3 added the target verdict
 (``/metrics/<deputy>`` attributes ``target_met``, ``target_verdict``, ``deadline_s``, ``t_final_s``
 and the ``/meta`` attribute ``targets_met``), the judge's count of unconverted samples
 (``/spacecraft/<name>/mean_oe@n_unconverted``, metric ``n_unconverted_samples``), the runtime

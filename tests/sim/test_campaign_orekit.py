@@ -12,6 +12,7 @@ common practice, no source).
 
 from __future__ import annotations
 
+import json
 import os
 import signal
 import subprocess
@@ -74,6 +75,10 @@ def mc(tmp_path_factory):
     r = run_campaign(plan, d / "w1", workers=1)
     assert r.counts == {"ok": 4}, r.failed
     assert len({w["pid"] for w in r.worker_runs}) == 1  # one JVM flew the four runs
+    import h5py
+
+    with h5py.File(d / "w1" / plan.jobs[0].log, "r") as h:  # the worker's JVM options, as run
+        assert "-XX:+UseSerialGC" in json.loads(h["meta"].attrs["jvm_options_json"])
     return f, plan, d / "w1"
 
 

@@ -72,7 +72,7 @@ def _fake_truth():
 
     info = SimpleNamespace(data_path="/fake", data_source="fake", orekit_version="fake",
                            java_version="fake", jpype_version="fake", data_files=())
-    api = SimpleNamespace(boot=lambda data_path=None: info, TruthWorld=FakeTruthWorld,
+    api = SimpleNamespace(boot=lambda data_path=None, jvm_options=None: info, TruthWorld=FakeTruthWorld,
                           mean_elements=lambda t, r, v, epoch: rv_to_oe(r, v),
                           mean_roe_m=lambda c, d: oe_to_roe(c, d) * np.asarray(c)[..., :1])
     old = sim.loop.run.truth_backend

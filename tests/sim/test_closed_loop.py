@@ -345,7 +345,7 @@ def long_run(tmp_path_factory):
 
     boot_info = SimpleNamespace(data_path="/fake", data_source="fake", orekit_version="fake",
                                 java_version="fake", jpype_version="fake", data_files=())
-    api = SimpleNamespace(boot=lambda data_path=None: boot_info, TruthWorld=FakeWorld,
+    api = SimpleNamespace(boot=lambda data_path=None, jvm_options=None: boot_info, TruthWorld=FakeWorld,
                           mean_elements=lambda t, r, v, epoch: rv_to_oe(r, v),
                           mean_roe_m=lambda c, d: oe_to_roe(c, d) * np.asarray(c)[..., :1])
     over = {"run.duration_s": NAV_CYCLES * NAV_DT_S, "run.log_step_s": 200.0,

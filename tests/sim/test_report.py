@@ -64,7 +64,7 @@ def _fly_fake(cfg, path):
                            java_version="fake", jpype_version="fake",
                            data_files=(("CSSI-Space-Weather-Data/SpaceWeather-All-v1.2.txt", 3,
                                         "2025-01-02T03:04:05Z"),))
-    api = SimpleNamespace(boot=lambda data_path=None: boot, TruthWorld=FakeTruthWorld,
+    api = SimpleNamespace(boot=lambda data_path=None, jvm_options=None: boot, TruthWorld=FakeTruthWorld,
                           mean_elements=lambda t, r, v, epoch: rv_to_oe(r, v),
                           mean_roe_m=lambda c, d: oe_to_roe(c, d) * np.asarray(c)[..., :1])
     with pytest.MonkeyPatch.context() as mp:

@@ -232,7 +232,7 @@ def test_missed_target_is_visible_and_strict_fails(tmp_path, fake_truth, capsys)
         assert f["meta"].attrs["targets_met"] == np.False_
         assert bool(f["metrics/d1"].attrs["target_met"]) is False
         assert f["metrics/d1"].attrs["target_verdict"].startswith("no: a d")
-        assert f.attrs["schema_version"] == "1.3"
+        assert f.attrs["schema_version"] == "1.4"
     n_bad = status.count("infeasible")
     assert n_bad > 0  # the law reports the missing authority
     assert f"guidance: {cycles_text(cycle_outcomes(status), 'cycles')}" in line
