@@ -27,12 +27,8 @@ import numpy as np
 from guidance.settings import closest, type_name
 from sim.errors import ScenarioError
 from sim.scenario.overrides import split_key
+from sim.scenario.reader import _toml, parse_toml  # noqa: F401 - _toml: tomllib or tomli
 from sim.scenario.tables import Table, unit_of
-
-try:  # Python >= 3.11
-    import tomllib as _toml
-except ModuleNotFoundError:  # pragma: no cover - Python 3.10
-    import tomli as _toml  # type: ignore[no-redef]
 
 __all__ = ["KINDS", "DISTRIBUTIONS", "SOURCES", "INTERVALS", "Distribution", "Dispersion", "Sweep",
            "ErrorBudget", "SummarySpec", "Campaign", "load_campaign", "parse_campaign",
@@ -283,10 +279,7 @@ def parse_campaign(text: str, path: str = "") -> Campaign:
     """Check a campaign file's own tables (not yet against the base scenario: that is
     :func:`sim.campaign.plan.plan_campaign`)."""
     src = path or "<campaign>"
-    try:
-        raw = _toml.loads(text)
-    except _toml.TOMLDecodeError as exc:
-        raise ScenarioError("(file)", None, f"not valid TOML: {exc}", path=src) from None
+    raw = parse_toml(text, src, "a campaign file")
     if not is_campaign(raw):
         raise ScenarioError("campaign", raw.get("campaign"), "a campaign file needs a [campaign] "
                             "table (name, scenario, runs, master_seed)", path=src)

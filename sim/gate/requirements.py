@@ -272,13 +272,10 @@ def parse_requirements(text: str, path: str = "") -> RequirementSet:
         Naming the key path (``requirement[2].percentile``), the value and what is allowed, with
         the closest valid name for a misspelt key or metric.
     """
-    from sim.scenario.reader import _toml  # tomllib, or tomli on Python 3.10
+    from sim.scenario.reader import parse_toml
 
     src = path or "<requirements>"
-    try:
-        raw = _toml.loads(text)
-    except _toml.TOMLDecodeError as exc:
-        raise ScenarioError("(file)", None, f"not valid TOML: {exc}", path=src) from None
+    raw = parse_toml(text, src, "a requirements file")
     top = _T(raw, "", ("gate", "requirement"), src)
     g = raw.get("gate", {})
     if not isinstance(g, dict):

@@ -114,19 +114,31 @@ def load_scenario(path, overrides: Mapping[str, Any] | None = None, *,
                           check_solar_span=check_solar_span)
 
 
+def parse_toml(text: str, src: str, what: str = "an input file") -> dict:
+    """The tables of TOML ``text`` (scenario, campaign and requirements files alike).
+
+    Raises
+    ------
+    ScenarioError
+        Key ``(file)``: not valid TOML (the parser's line and column), or nested so deeply that
+        the parser runs out of recursion (``what`` needs at most a few levels).
+    """
+    try:
+        return _toml.loads(text)
+    except _toml.TOMLDecodeError as exc:
+        raise ScenarioError("(file)", None, f"not valid TOML: {exc}", path=src) from None
+    except RecursionError:
+        raise ScenarioError("(file)", None, "not readable: arrays or tables nested too deeply "
+                            f"({what} needs at most a few levels)", path=src) from None
+
+
 def parse_scenario(text: str, path: str = "", overrides: Mapping[str, Any] | None = None, *,
                    orekit_data: str | os.PathLike | None = None,
                    check_solar_span: bool = True) -> RunConfig:
     """Validate scenario TOML text (see :func:`load_scenario`); ``path`` names it in errors and
     anchors relative paths in it (default: the current directory)."""
     src = path or "<scenario>"
-    try:
-        raw = _toml.loads(text)
-    except _toml.TOMLDecodeError as exc:
-        raise ScenarioError("(file)", None, f"not valid TOML: {exc}", path=src) from None
-    except RecursionError:
-        raise ScenarioError("(file)", None, "not readable: arrays or tables nested too deeply "
-                            "(a scenario needs at most a few levels)", path=src) from None
+    raw = parse_toml(text, src, "a scenario")
     if overrides:
         for k, v in overrides.items():
             _apply_override(raw, k, v, src)

@@ -295,6 +295,12 @@ BAD = [
      ["sweeps", "cannot be crossed"]),
     ("unknown_source", '[error_budget]\nsources = ["navigaton"]\n', ["error_budget.sources", "did you mean 'navigation'"]),
     ("unknown_table", '[dispersion]\nkey = "x"\n', ["dispersion", "did you mean 'dispersions'"]),
+    # each value valid alone (perigee 196-207 km at e = 0.0005; 294-362 km at 500 km altitude),
+    # never together: perigee = a (1 - e) - R_E = 6578-6588 km x (0.97-0.98) - 6378 km < 150 km
+    ("combination", '[[dispersions]]\nkey = "chief.orbit.altitude_km"\ndistribution = "uniform"\nlow = 200.0\nhigh = 210.0\n'
+     '[[dispersions]]\nkey = "chief.orbit.e"\ndistribution = "uniform"\nlow = 0.02\nhigh = 0.03\n',
+     ["run 0 (t_0000)", "each value is allowed alone, but together", "chief.orbit.altitude_km = 20",
+      "events.min_altitude_km = 150", "narrow the distributions"]),
 ]
 
 
@@ -330,3 +336,16 @@ def test_bad_campaign_table(tmp_path, demo, capsys, edit, named):
     err = capsys.readouterr().err
     for s in named:
         assert s in err, (s, err)
+
+
+@pytest.mark.parametrize("value", ["[" * 5000 + "]" * 5000, "{a = " * 400 + "1" + "}" * 400])
+def test_deeply_nested_campaign_file_is_refused_in_one_line(tmp_path, demo, capsys, value):
+    """The parser runs out of recursion (Python's limit, about 1000 frames) on such a file: exit 2
+    and one line, as for the scenario reader (common practice, no source)."""
+    f = tmp_path / "deep.toml"
+    f.write_text(head(demo) + f'"run.seed" = {value}\n')
+    assert main(["campaign", str(f), "-o", str(tmp_path / "out")]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "Traceback" not in err and "RecursionError" not in err, err
+    assert "nested too deeply" in err or "not valid TOML" in err, err
+    assert not (tmp_path / "out").exists()

@@ -234,6 +234,7 @@ BASE = '[[requirement]]\nid = "R1"\ntext = "t"\n'
      "gate.percentile_method", ["did you mean 'linear'"]),
     ('[gates]\n' + BASE + 'metric = "n_burns"\nmax = 3\n', "gates", ["did you mean 'gate'"]),
     ('[gate]\nname = "x"\n', "requirement", ["at least one [[requirement]]"]),
+    ('[gate]\nname = ' + "[" * 5000 + "]" * 5000 + '\n', "(file)", ["nested too deeply"]),
 ])
 def test_bad_requirements_exit_2_naming_key_and_allowed(body, key, allowed, runs, tmp_path, capsys):
     with pytest.raises(ScenarioError) as e:
