@@ -15,6 +15,7 @@ benchmarks/RESULTS.md has the measurements behind both choices.
 
 from __future__ import annotations
 
+import atexit
 import gc
 import os
 import signal
@@ -81,12 +82,26 @@ def rss_kb() -> int:
         return -1
 
 
+def _leave() -> None:
+    """The worker's last exit handler: leave without Python's finalisation, which can abort the
+    process ("FATAL: exception not rethrown") while the JVM's threads still run; as
+    ``sim.cli.main.console_main`` does for the command line."""
+    for f in (sys.stdout, sys.stderr):
+        try:
+            f.flush()
+        except (OSError, ValueError, AttributeError):
+            pass
+    os._exit(0)
+
+
 def init_local_worker(parent_pid: int) -> None:
     """Initializer of a local worker process: Ctrl-C is the parent's to handle (a run interrupted
     here would be closed as ``failed`` under its final name), and on Linux the worker is killed
     with its parent (``prctl(PR_SET_PDEATHSIG, SIGKILL)``), so a killed campaign leaves no worker
-    writing into the folder that a resumed campaign cleans."""
+    writing into the folder that a resumed campaign cleans. At exit the worker skips Python's
+    finalisation (:func:`_leave`)."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    atexit.register(_leave)
     if sys.platform.startswith("linux"):
         try:
             import ctypes

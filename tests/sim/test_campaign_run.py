@@ -238,6 +238,26 @@ def test_dask_local_cluster_gives_the_same_logs(tmp_path):
     same_summary(tmp_path / "ref", tmp_path / "dask")
 
 
+def test_a_running_dask_scheduler_by_address_gives_the_same_logs(tmp_path):
+    """--scheduler ADDRESS: covey connects a Client to a scheduler it did not start (here one
+    started beside the test, reached by its tcp:// address as a remote one would be)."""
+    distributed = pytest.importorskip("distributed")
+    import logging
+
+    plan = plan_of(campaign_text(), tmp_path)
+    run_campaign(plan, tmp_path / "ref", workers=0, fly=fake_fly)
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  dashboard_address=None, silence_logs=logging.ERROR) as cluster:
+        address = cluster.scheduler_address
+        assert address.startswith("tcp://")
+        r = run_campaign(plan, tmp_path / "remote", scheduler=address, fly=fake_fly)
+        assert cluster.scheduler_address == address  # covey left the cluster running
+    assert r.counts == {"ok": 4} and address in r.executor and "2 worker threads" in r.executor
+    assert len({w["pid"] for w in r.worker_runs}) == 2
+    same_logs(plan, tmp_path / "ref", tmp_path / "remote")
+    same_summary(tmp_path / "ref", tmp_path / "remote")
+
+
 def test_cli_campaign_and_summary(tmp_path, fake_truth, capsys):
     import json
 
