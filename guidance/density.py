@@ -9,7 +9,8 @@ Models
 ``"exponential"`` (default)
     Piecewise exponential atmosphere with tabulated base densities and scale heights, Vallado,
     *Fundamentals of Astrodynamics and Applications*, 4th ed., 2013, table 8-4 (values from
-    CIRA-72) [memory; the same numbers appear in many public code copies of that table].
+    CIRA-72) [memory; checked row by row against several independent public copies of the
+    table, and continuous at every base altitude within 0.14 %, as the published table is].
 ``"harris_priester"``
     Harris-Priester minimum/maximum density table for mean solar activity, Montenbruck & Gill,
     *Satellite Orbits*, Springer 2000, table 3.8 [memory; identical to the table in Orekit's

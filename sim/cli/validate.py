@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import re
 from pathlib import Path
 
 from sim.cli.common import UsageError, load, out
@@ -30,9 +31,13 @@ def _is_campaign_file(path: str) -> bool:
     from sim.campaign.spec import _toml, is_campaign
 
     try:
-        return is_campaign(_toml.loads(Path(path).read_text(encoding="utf-8")))
-    except (OSError, UnicodeDecodeError, RecursionError, _toml.TOMLDecodeError):
+        text = Path(path).read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError):
         return False  # the scenario reader reports it
+    try:
+        return is_campaign(_toml.loads(text))
+    except (RecursionError, _toml.TOMLDecodeError):  # the campaign or scenario reader says why
+        return re.search(r"^\s*\[\s*campaign\s*\]", text, re.MULTILINE) is not None
 
 
 def run(args: argparse.Namespace) -> int:

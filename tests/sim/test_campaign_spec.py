@@ -349,3 +349,7 @@ def test_deeply_nested_campaign_file_is_refused_in_one_line(tmp_path, demo, caps
     assert err.count("\n") == 1 and "Traceback" not in err and "RecursionError" not in err, err
     assert "nested too deeply" in err or "not valid TOML" in err, err
     assert not (tmp_path / "out").exists()
+    assert main(["validate", str(f)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "Traceback" not in err, err
+    assert "a campaign file" in err or "not valid TOML" in err, err
