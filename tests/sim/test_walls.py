@@ -146,10 +146,14 @@ def import_cycles(root: Path) -> list[list[str]]:
             if len(comp) > 1:
                 out.append(sorted(comp))
 
-    sys.setrecursionlimit(max(10000, sys.getrecursionlimit()))
-    for v in sorted(g):
-        if v not in index:
-            visit(v)
+    limit = sys.getrecursionlimit()
+    sys.setrecursionlimit(max(10000, limit))
+    try:
+        for v in sorted(g):
+            if v not in index:
+                visit(v)
+    finally:
+        sys.setrecursionlimit(limit)  # other tests rely on the interpreter's own limit
     return out
 
 
